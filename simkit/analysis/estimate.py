@@ -1,0 +1,140 @@
+"""Estimate the steady state of a design from closed forms, as a starting point for ngspice.
+
+The estimate only decides how soon the simulation settles, never a reported figure.  It
+uses the infinite-capacitance solution with series resistance (REFERENCES.md formula 19:
+tan(phi) - phi = pi*Rs/(n*R_L), V = Vpk*cos(phi)), the finite-C ripple correction
+I/(k*f*C), the choke-input value 2*Vpk/pi (formula 9) and, for the cascade, the
+quasi-static crest drop (formula 7a).
+"""
+
+from __future__ import annotations
+
+import math
+
+from scipy.optimize import brentq
+
+from simkit.design.model import Design
+from simkit.netlist.circuit import Circuit
+from simkit.parts.diodes import forward_drop
+
+
+def conduction_half_angle(rs_over_nrl: float) -> float:
+    """Solve tan(phi) - phi = pi * Rs / (n * R_L) for phi in (0, pi/2), rad (formula 19)."""
+    k = math.pi * max(rs_over_nrl, 0.0)
+    if k <= 1e-12:
+        return 0.0
+    return brentq(lambda p: math.tan(p) - p - k, 1e-9, math.pi / 2 - 1e-9, xtol=1e-12)
+
+
+def _dc_chain(design: Design) -> tuple[float, float, float | None]:
+    """Series resistance of the filter chain, and the load as (R_parallel, I_const)."""
+    rser = 0.0
+    for sec in design.filters:
+        if sec.kind == "r":
+            rser += sec.value
+        elif sec.kind == "l":
+            rser += sec.dcr
+    g = 0.0
+    i_const = None
+    if design.load is not None:
+        if design.load.kind == "resistor" and design.load.r:
+            g += 1.0 / design.load.r
+        elif design.load.i:
+            i_const = design.load.i
+    if design.bleeder is not None:
+        g += 1.0 / design.bleeder.r
+    return rser, g, i_const
+
+
+def _current(vr: float, rser: float, g: float, i_const: float | None) -> float:
+    """DC current drawn from the rectifier output at voltage vr, A."""
+    if i_const is None:
+        return vr * g / (1.0 + rser * g) if g > 0 else 0.0
+    # I = Ic + g*(vr - I*rser)
+    return (i_const + g * vr) / (1.0 + rser * g)
+
+
+def estimate_state(design: Design, circuit: Circuit, vscale: float = 1.0) -> dict[str, float]:
+    """Initial conditions (V on capacitors, A in inductors) near the periodic steady state."""
+    s = design.source
+    r = design.rectifier
+    vpk = s.vpeak * vscale
+    f = s.frequency
+    rser, g, i_const = _dc_chain(design)
+    topo = r.topology
+    first = design.filters[0].kind if design.filters else None
+    choke_input = first == "l" and topo in ("half-wave", "centre-tap", "bridge")
+    n_path = 2 if topo == "bridge" else 1
+    rs = s.resistance
+    reservoir = None
+    if topo in ("half-wave", "centre-tap", "bridge") and first == "c":
+        reservoir = design.filters[0].value
+
+    def vr_of(i: float) -> float:
+        drop = n_path * forward_drop(r.diode, max(i, 1e-4) * 4.0) if i > 0 else 0.0
+        if topo in ("half-wave", "centre-tap", "bridge"):
+            n = 1.0 if topo == "half-wave" else 2.0
+            if choke_input:
+                return max(2 * vpk / math.pi * (1 if n == 2 else 0.5) - i * rs - drop, 0.0)
+            if reservoir is None:
+                return vpk * 2 / math.pi / (1 if n == 2 else 2) - drop
+            rl = vpk / max(i, 1e-12)
+            phi = conduction_half_angle(rs / (n * rl))
+            return max(vpk * math.cos(phi) - drop - i / (2 * n * f * reservoir), 0.0)
+        c = r.capacitance or 1e-6
+        if topo == "doubler":
+            rl = 2 * vpk / max(i, 1e-12)
+            phi = conduction_half_angle(rs / (0.5 * rl))
+            return max(2 * vpk * math.cos(phi) - 2 * drop - i / (f * c), 0.0)
+        m = r.stages
+        crest = i / (f * c) * (2 * m**3 / 3 + m**2 / 4 + m / 12)
+        return max(2 * m * vpk - crest - 2 * m * (drop + 2 * i * rs), 0.1 * vpk)
+
+    # Fixed-point iteration on the DC current, damped.
+    i = 0.0
+    vr = vr_of(0.0)
+    for _ in range(60):
+        i_new = _current(vr, rser, g, i_const)
+        i = 0.5 * i + 0.5 * i_new
+        vr = vr_of(i)
+    i = _current(vr, rser, g, i_const)
+
+    ics: dict[str, float] = {}
+    # DC node voltages along the filter ladder: each series element drops I*R.
+    node_v: dict[str, float] = {circuit.rectified: vr}
+    v = vr
+    for r_series, node in _series_nodes(circuit):
+        v -= i * r_series
+        node_v[node] = v
+    for ind in circuit.inductors:
+        ics[ind.name] = i if ind.role == "choke" else 0.0
+    for cap in circuit.capacitors:
+        if cap.role == "snubber":
+            ics[cap.name] = 0.0
+        elif cap.role != "stage":
+            ics[cap.name] = node_v.get(cap.plus, vr)
+    stage_caps = [c for c in circuit.capacitors if c.role == "stage"]
+    if topo == "doubler":
+        for cap in stage_caps:
+            ics[cap.name] = vr / 2
+    elif topo == "cascade":
+        k = vr / (2 * r.stages * vpk)
+        for idx, cap in enumerate(stage_caps):
+            ics[cap.name] = vpk * k if idx == 0 else 2 * vpk * k
+    return ics
+
+
+def _series_nodes(circuit: Circuit) -> list[tuple[float, str]]:
+    """(series resistance, node after it) for each filter series element, in order."""
+    out: list[tuple[float, str]] = []
+    for ind in circuit.inductors:
+        if ind.role == "choke":
+            out.append((ind.dcr, ind.b))
+    for res in circuit.resistors:
+        if res.role == "filter":
+            out.append((res.value, res.b))
+    order = {e.name: k for k, e in enumerate(circuit.elements)}
+    names = {**{ind.b: ind.name for ind in circuit.inductors if ind.role == "choke"},
+             **{res.b: res.name for res in circuit.resistors if res.role == "filter"}}
+    out.sort(key=lambda t: order[names[t[1]]])
+    return out

@@ -1,0 +1,285 @@
+"""The two analyses of a design: switch-on from empty capacitors, and the periodic steady state.
+
+Steady state: start from the closed-form estimate (:mod:`simkit.analysis.estimate`), run
+whole periods in chunks, each chunk a fresh ``.tran ... uic`` that starts from the exact
+state (every capacitor voltage and inductor current) where the last one ended.  After each
+chunk a detector compares the output's mean, minimum and maximum over the last periods;
+the run has settled when the change per period is below ``settle_tolerance`` and the
+geometric extrapolation of the remaining drift is below ten times that.  When the drift
+shrinks slowly (large time constants: choke filters, multipliers), a Newton shooting step
+on the one-period map jumps to the periodic state, and the chunks then confirm it.
+
+The final chunk is a complete deck by itself (its initial conditions and span are the
+ones simulated last): :func:`steady_state` returns it, and ``simkit netlist`` prints it.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import sys
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from simkit.analysis import metrics
+from simkit.analysis.estimate import estimate_state
+from simkit.design.model import Design
+from simkit.engine.ngspice import Engine, Waveforms
+from simkit.errors import SimulationError
+from simkit.netlist.circuit import Circuit, Transient, render
+
+#: Periods per chunk of the steady-state run.
+CHUNK_PERIODS = 4
+#: Whole periods at the end of the final chunk over which figures are taken.
+MEASURE_PERIODS = 2
+#: Default cap on the simulated time waiting for steady state, in periods.
+MAX_PERIODS = 400
+
+SAFE_OPTIONS = ("gmin=1e-10", "itl4=100", "rshunt=1e10")
+
+
+@dataclass
+class Run:
+    """One completed transient: its deck, span and waveforms."""
+
+    deck: str
+    tstop: float
+    waves: Waveforms
+    ics: dict[str, float]
+    retried: bool = False
+
+
+@dataclass
+class SteadyState:
+    final: Run
+    settle_time: float  # s, all steady-state time simulated
+    settled: bool
+    periods: int
+    shooting_steps: int = 0
+    history: list[metrics.PeriodStats] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+
+def transient(design: Design, circuit: Circuit, tstop: float, safe: bool = False) -> Transient:
+    sim = design.simulation
+    tmax = circuit.period / sim.steps_per_period
+    if safe:
+        return Transient(tstop=tstop, tmax=tmax, reltol=max(sim.reltol, 1e-3), abstol=1e-8,
+                         method="gear", extra_options=SAFE_OPTIONS)
+    return Transient(tstop=tstop, tmax=tmax, reltol=sim.reltol)
+
+
+def run_span(engine: Engine, design: Design, circuit: Circuit, tstop: float, ics: dict[str, float],
+             meas: list[str] | None = None) -> Run:
+    """Run one span; on convergence trouble retry once with safer options, then give up."""
+    deck = render(circuit, transient(design, circuit, tstop), ics, meas)
+    try:
+        return Run(deck, tstop, engine.run(deck, tstop), ics)
+    except SimulationError as first:
+        safe_deck = render(circuit, transient(design, circuit, tstop, safe=True), ics, meas)
+        try:
+            return Run(safe_deck, tstop, engine.run(safe_deck, tstop), ics, retried=True)
+        except SimulationError as second:
+            raise SimulationError(
+                f"ngspice could not complete the simulation of {design.origin} "
+                f"(also not with safer options: {', '.join(SAFE_OPTIONS)}, method=gear)",
+                deck=second.deck,
+                log=second.log or first.log,
+                hint="give the winding a series resistance (source.resistance), give chokes "
+                "their dcr and capacitors their esr, lower simulation.steps_per_period, or "
+                "check the part values for typing errors (for example mF instead of uF)",
+            ) from None
+
+
+def end_state(circuit: Circuit, waves: Waveforms) -> dict[str, float]:
+    """Capacitor voltages and inductor currents at the last time point."""
+    state: dict[str, float] = {}
+    for cap in circuit.capacitors:
+        state[cap.name] = float(waves.v(cap.inner_plus)[-1] - waves.v(cap.inner_minus)[-1])
+    for ind in circuit.inductors:
+        state[ind.name] = float(waves.i(ind.name)[-1])
+    return state
+
+
+def switch_on_span(design: Design, circuit: Circuit) -> float:
+    """Length of the switch-on run: long enough for the surge and any LC overshoot, s."""
+    if design.simulation.switch_on_time is not None:
+        return design.simulation.switch_on_time
+    T = circuit.period
+    span = 5 * T
+    caps_after: list[float] = []
+    filt = [c for c in circuit.capacitors if c.role in ("filter", "reservoir")]
+    for ind in circuit.inductors:
+        if ind.role != "choke":
+            continue
+        # Capacitance the choke charges: every filter capacitor; the resonance sets the overshoot.
+        c_total = sum(c.value for c in filt) or 0.0
+        caps_after.append(c_total)
+        if c_total > 0:
+            t_lc = 2 * math.pi * math.sqrt(ind.value * c_total)
+            span = max(span, 0.75 * t_lc)
+    return min(span, max(5 * T, 3.0))
+
+
+def switch_on(engine: Engine, design: Design, circuit: Circuit) -> Run:
+    """All capacitors empty, source starting at ``switch_on_phase``."""
+    span = switch_on_span(design, circuit)
+    zero = {e.name: 0.0 for e in circuit.state_elements()}
+    return run_span(engine, design, circuit, span, zero)
+
+
+def _settled(hist: list[metrics.PeriodStats], scale: float, tol: float) -> tuple[bool, float]:
+    """Is the output periodic?  Returns (settled, estimated periods still needed).
+
+    Settled means: the change per period of the mean, minimum and maximum is below
+    ``tol`` of the output voltage, and also below 1 % of the ripple (so the ripple is not
+    inflated by drift), and the geometric extrapolation of the remaining drift of the mean
+    is below ten times ``tol``.
+    """
+    if len(hist) < 3:
+        return False, math.inf
+    a, b, c = hist[-3], hist[-2], hist[-1]
+    change = max(abs(c.mean - b.mean), abs(c.low - b.low), abs(c.high - b.high))
+    ripple = max(c.high - c.low, 0.0)
+    limit = min(tol * scale, max(0.01 * ripple, 1e-6 * scale))
+    d1 = b.mean - a.mean
+    d2 = c.mean - b.mean
+    remaining = 0.0
+    rho = 0.0
+    if d1 != 0 and d2 != 0 and (d1 > 0) == (d2 > 0) and abs(d2) < abs(d1):
+        rho = d2 / d1
+        remaining = abs(d2) * rho / (1 - rho)
+    if change < limit and remaining < 10 * tol * scale:
+        return True, 0.0
+    if 0 < rho < 1 and change > 0:
+        return False, max(math.log(limit / change) / math.log(rho), 1.0)
+    return False, math.inf
+
+
+def steady_state(engine: Engine, design: Design, circuit: Circuit, vscale: float = 1.0) -> SteadyState:
+    """Run until the output is periodic; see the module docstring."""
+    debug = bool(os.environ.get("SIMKIT_DEBUG_STEADY"))
+    T = circuit.period
+    sim = design.simulation
+    max_time = sim.max_settle_time if sim.max_settle_time is not None else MAX_PERIODS * T
+    tol = sim.settle_tolerance
+    ics = estimate_state(design, circuit, vscale)
+    span = CHUNK_PERIODS * T
+    hist: list[metrics.PeriodStats] = []
+    total = 0.0
+    shooting = 0
+    notes: list[str] = []
+    scale = max(design.source.vpeak * vscale * 1e-3, 1e-9)
+    run: Run | None = None
+    while True:
+        run = run_span(engine, design, circuit, span, ics)
+        total += span
+        v = run.waves.v(circuit.output)
+        stats = metrics.period_stats(run.waves.time, v, T, 0.0)
+        hist.extend(stats)
+        scale = max(abs(stats[-1].mean), design.source.vpeak * vscale * 1e-3, 1e-9)
+        ok, remaining = _settled(hist, scale, tol)
+        end = end_state(circuit, run.waves)
+        drift = _state_drift(circuit, ics, end, design.source.vpeak * vscale) / CHUNK_PERIODS
+        if debug:
+            print(f"chunk to {total:.4g} s: change {_change(hist, 1.0):.3g} V, state drift "
+                  f"{drift:.3g}/period, {remaining:.3g} periods to go", file=sys.stderr)
+        if ok and drift < tol:
+            return SteadyState(run, total, True, round(total / T), shooting, hist, notes)
+        if total + span > max_time * (1 + 1e-9):
+            notes.append(
+                f"not settled: the output still changed {_change(hist, scale):.2g} per period "
+                f"after {total:.3g} s (raise simulation.max_settle_time)"
+            )
+            return SteadyState(run, total, False, round(total / T), shooting, hist, notes)
+        ics = end
+        slow = remaining > 2 * CHUNK_PERIODS or (ok and drift >= tol)
+        if shooting < 3 and slow:
+            new_ics, used = shoot(engine, design, circuit, ics)
+            total += used * T
+            shooting += 1
+            if new_ics is not None:
+                ics = new_ics
+                hist.clear()
+
+
+def _state_drift(circuit: Circuit, before: dict[str, float], after: dict[str, float], vpk: float) -> float:
+    """Largest relative change of any state variable (snubbers aside) between two instants."""
+    worst = 0.0
+    i_scale = max([abs(after[x.name]) for x in circuit.inductors] + [1e-3])
+    for cap in circuit.capacitors:
+        if cap.role == "snubber":
+            continue
+        sc = max(abs(after[cap.name]), 1e-3 * vpk)
+        worst = max(worst, abs(after[cap.name] - before.get(cap.name, 0.0)) / sc)
+    for ind in circuit.inductors:
+        if ind.role != "choke":
+            continue
+        worst = max(worst, abs(after[ind.name] - before.get(ind.name, 0.0)) / i_scale)
+    return worst
+
+
+def _change(hist: list[metrics.PeriodStats], scale: float) -> float:
+    if len(hist) < 2:
+        return math.inf
+    b, c = hist[-2], hist[-1]
+    return max(abs(c.mean - b.mean), abs(c.low - b.low), abs(c.high - b.high)) / scale
+
+
+def shoot(engine: Engine, design: Design, circuit: Circuit, x0: dict[str, float],
+          iterations: int = 4) -> tuple[dict[str, float] | None, int]:
+    """Newton's method on x = Phi_T(x), the one-period map of the state.
+
+    The Jacobian comes from finite differences (one one-period run per state variable).
+    Returns the improved state (None if Newton did not reduce the residual) and the number
+    of periods simulated.
+    """
+    T = circuit.period
+    names = list(x0)
+    vpk = design.source.vpeak
+    i_scale = max(abs(v) for k, v in x0.items() if k.startswith("L")) if any(
+        k.startswith("L") for k in x0) else 1.0
+    scales = np.array([vpk if n.startswith("C") else max(i_scale, 1e-3) for n in names])
+    used = 0
+
+    def phi(x: np.ndarray) -> np.ndarray:
+        nonlocal used
+        run = run_span(engine, design, circuit, T, dict(zip(names, x.tolist(), strict=True)))
+        used += 1
+        st = end_state(circuit, run.waves)
+        return np.array([st[n] for n in names])
+
+    x = np.array([x0[n] for n in names])
+    fx = phi(x) - x
+    best = float(np.max(np.abs(fx) / scales))
+    start = best
+    for _ in range(iterations):
+        if best < 1e-7:
+            break
+        h = 1e-4 * scales
+        px = fx + x
+        jac = np.empty((len(x), len(x)))
+        for j in range(len(x)):
+            xp = x.copy()
+            xp[j] += h[j]
+            jac[:, j] = (phi(xp) - px) / h[j]
+        try:
+            dx = np.linalg.solve(jac - np.eye(len(x)), -fx)
+        except np.linalg.LinAlgError:
+            break
+        step = 1.0
+        improved = False
+        for _ in range(4):
+            xn = x + step * dx
+            fn = phi(xn) - xn
+            res = float(np.max(np.abs(fn) / scales))
+            if res < best:
+                x, fx, best, improved = xn, fn, res, True
+                break
+            step *= 0.5
+        if not improved:
+            break
+    if best >= start:
+        return None, used
+    return dict(zip(names, x.tolist(), strict=True)), used
