@@ -13,7 +13,7 @@ from simkit.analysis import metrics as mx
 from simkit.analysis.steady import MEASURE_PERIODS, Run, SteadyState, steady_state, switch_on
 from simkit.design.loader import design_to_inputs
 from simkit.design.model import Design
-from simkit.engine.ngspice import Engine, Waveforms, get_engine
+from simkit.engine.ngspice import Engine, get_engine
 from simkit.netlist.build import build_circuit
 from simkit.netlist.circuit import Circuit
 from simkit.units import spice
@@ -249,5 +249,20 @@ def steady_deck(result: RunResult) -> str:
     return render(result.circuit, tran, run.ics, measure_lines(result.circuit, t0, t1), header)
 
 
-def waveforms_of(result: RunResult) -> tuple[Waveforms, Waveforms]:
-    return result.steady.final.waves, result.start.waves
+def switch_on_deck(result: RunResult) -> str:
+    """The switch-on deck (empty capacitors, source from ``switch_on_phase``) with .meas lines."""
+    from simkit.analysis.steady import transient
+    from simkit.netlist.build import build_circuit
+    from simkit.netlist.circuit import render
+
+    d = result.design
+    run = result.start
+    circuit = build_circuit(d, phase_deg=d.simulation.switch_on_phase)
+    header = [f"switch-on run of {d.title}",
+              f"all capacitors empty, source starting at {d.simulation.switch_on_phase:g} degrees"]
+    meas = [f".meas tran surge_peak_a_{x.name.lower()} MAX i({x.sense.lower()})" for x in circuit.diodes]
+    meas += [f".meas tran cap_peak_v_{c.name.lower()} MAX v({c.plus},{c.minus})" if c.minus != "0"
+             else f".meas tran cap_peak_v_{c.name.lower()} MAX v({c.plus})"
+             for c in circuit.capacitors if c.role != "snubber"]
+    tran = transient(d, circuit, run.tstop, safe=run.retried)
+    return render(circuit, tran, run.ics, meas, header)

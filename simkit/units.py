@@ -137,24 +137,42 @@ def parse_value(value: object, unit: str = "") -> float:
     if isinstance(value, bool):
         raise UnitError(f"got true/false, expected {UNIT_NAMES[unit]} such as {UNIT_EXAMPLES[unit]}")
     if isinstance(value, (int, float)):
-        result = float(value)
+        result = _to_float(value)
     elif isinstance(value, str):
         result = _parse_string(value, unit)
     else:
         raise UnitError(
-            f"got {type(value).__name__}, expected {UNIT_NAMES[unit]} such as {UNIT_EXAMPLES[unit]}"
+            f"got {_type_name(value)}, expected {UNIT_NAMES[unit]} such as {UNIT_EXAMPLES[unit]}"
         )
     if not math.isfinite(result):
         raise UnitError(f"{value!r} is not a finite number")
     return result
 
 
+def _to_float(value: int | float) -> float:
+    try:
+        return float(value)
+    except OverflowError:  # an integer literal with hundreds of digits
+        raise UnitError(f"{_type_name(value)} too large to be a finite number") from None
+
+
+def _type_name(value: object) -> str:
+    """What a TOML value is, in the words of the design file (a table, not a dict)."""
+    names = {dict: "a table", list: "a list", str: "text", int: "a number", float: "a number"}
+    return names.get(type(value), f"a {type(value).__name__}")
+
+
+def _has_control(text: str) -> bool:
+    # Checked before stripping: "1k\n" is as wrong as "1k\n.control".
+    return any(ord(ch) < 32 or ord(ch) == 127 for ch in text)
+
+
 def _parse_string(raw: str, unit: str) -> float:
+    if _has_control(raw):
+        raise UnitError("the value contains a line break or control character")
     text = raw.strip()
     if not text:
         raise UnitError(f"empty value, expected {UNIT_NAMES[unit]} such as {UNIT_EXAMPLES[unit]}")
-    if any(ord(ch) < 32 or ord(ch) == 127 for ch in text):
-        raise UnitError("the value contains a line break or control character")
     m = _INFIX_RE.match(text)
     if m:
         _check_unit(m["unit"] or "", unit, raw)
@@ -196,22 +214,27 @@ def parse_percent(value: object) -> float:
     if isinstance(value, bool):
         raise UnitError('got true/false, expected a percentage such as "10%"')
     if isinstance(value, (int, float)):
-        v = float(value)
+        v = _to_float(value)
+        if not math.isfinite(v):
+            raise UnitError(f'{value!r} is not a percentage such as "10%"')
         return v / 100.0 if v > 1.0 else v
     if isinstance(value, str):
-        text = value.strip()
-        if any(ord(ch) < 32 for ch in text):
+        if _has_control(value):
             raise UnitError("the value contains a line break or control character")
+        text = value.strip()
         if text.endswith("%"):
             try:
-                return float(text[:-1].strip()) / 100.0
+                v = float(text[:-1].strip())
             except ValueError:
                 raise UnitError(f'{value!r} is not a percentage such as "10%"') from None
+            if not math.isfinite(v):
+                raise UnitError(f'{value!r} is not a percentage such as "10%"')
+            return v / 100.0
         try:
             return parse_percent(float(text))
         except ValueError:
             raise UnitError(f'{value!r} is not a percentage such as "10%"') from None
-    raise UnitError(f'got {type(value).__name__}, expected a percentage such as "10%"')
+    raise UnitError(f'got {_type_name(value)}, expected a percentage such as "10%"')
 
 
 # --- formatting -------------------------------------------------------------------------

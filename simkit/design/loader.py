@@ -74,7 +74,8 @@ def read_toml(path: str | Path) -> dict[str, Any]:
     except UnicodeDecodeError as exc:
         line = raw[: exc.start].count(b"\n") + 1
         raise DesignError(f"not UTF-8 text (bad byte on line {line})", file=name) from None
-    return parse_toml_text(text, name)
+    # Some editors start UTF-8 files with a byte-order mark; TOML itself does not allow one.
+    return parse_toml_text(text.removeprefix("\ufeff"), name)
 
 
 def parse_toml_text(text: str, name: str = "<design>") -> dict[str, Any]:
@@ -82,6 +83,8 @@ def parse_toml_text(text: str, name: str = "<design>") -> dict[str, Any]:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise DesignError(f"TOML syntax error: {exc}", file=name) from None
+    except RecursionError:  # tomllib recurses once per level of nested arrays or tables
+        raise DesignError("TOML nested too deeply to be a design file", file=name) from None
 
 
 def apply_overrides(data: dict[str, Any], overrides: Sequence[str], file: str) -> dict[str, Any]:
@@ -91,6 +94,8 @@ def apply_overrides(data: dict[str, Any], overrides: Sequence[str], file: str) -
     value when it is one (``3``, ``true``, ``"x"``), else as a plain string (``220u``).
     """
     out = copy.deepcopy(data)
+    if overrides and isinstance(out.get("filter"), dict):
+        out["filter"] = [out["filter"]]  # a lone [filter] table counts as one section, as in _filters
     for item in overrides:
         if "=" not in item:
             raise DesignError(f"--set {item!r}: expected PATH=VALUE, e.g. filter.0.c=220u", file=file)
@@ -130,10 +135,20 @@ def _set_path(root: Any, parts: list[str], value: Any, file: str, path: str) -> 
             else:
                 node = node[idx]
         elif isinstance(node, dict):
+            if part.isdigit():
+                parent = ".".join(parts[:i]) or "the top level"
+                raise DesignError(f"--set {path}: {parent!r} is a table, not a list; it has no position {part}",
+                                  file=file)
             if last:
                 node[part] = value
             else:
                 if part not in node:
+                    if parts[i + 1].isdigit():
+                        raise DesignError(
+                            f"--set {path}: position {parts[i + 1]} is past the end (the file has no {where!r} "
+                            "sections)",
+                            file=file,
+                        )
                     node[part] = {}
                 node = node[part]
         else:
@@ -165,7 +180,8 @@ class _Reader:
     def check_keys(self, table: Mapping[str, Any], allowed: Mapping[str, schema.Key], path: str) -> None:
         for key in table:
             if key not in allowed:
-                full = f"{path}.{key}" if path else key
+                shown = key if key.isprintable() else repr(key)  # a quoted TOML key may hold anything
+                full = f"{path}.{shown}" if path else shown
                 near = difflib.get_close_matches(key, list(allowed), n=1, cutoff=0.6)
                 hint = f"; did you mean {near[0]!r}?" if near else f"; valid keys: {', '.join(allowed)}"
                 raise self.fail(full, f"unknown key{hint}")

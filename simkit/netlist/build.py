@@ -175,10 +175,10 @@ class _Builder:
                 p_prev = f"p{k - 1}"
                 p_k = f"p{k}"
                 s_k = top if k == n else f"s{k}"
-                self.capacitor(p_prev, p_k, r.capacitance, 0.0, "stage")
+                self.capacitor(p_k, p_prev, r.capacitance, 0.0, "stage")  # plus on the higher node
                 self.diode(s_prev, p_k)
                 self.diode(p_k, s_k)
-                self.capacitor(s_prev, s_k, r.capacitance, 0.0, "stage")
+                self.capacitor(s_k, s_prev, r.capacitance, 0.0, "stage")
                 s_prev = s_k
         else:  # pragma: no cover - the loader refuses other names
             raise ValueError(r.topology)
