@@ -111,9 +111,11 @@ def apply_overrides(data: dict[str, Any], overrides: Sequence[str], file: str) -
 
 def _override_value(text: str) -> Any:
     try:
-        return tomllib.loads(f"v = {text}")["v"]
+        doc = tomllib.loads(f"v = {text}")
     except tomllib.TOMLDecodeError:
         return text
+    # "250\nx = 1" parses as two keys; taking v alone would silently drop the rest.
+    return doc["v"] if list(doc) == ["v"] else text
 
 
 def _set_path(root: Any, parts: list[str], value: Any, file: str, path: str) -> None:
@@ -188,7 +190,8 @@ class _Reader:
         for key, spec in allowed.items():
             if spec.required and key not in table:
                 full = f"{path}.{key}" if path else key
-                raise self.fail(full, f"missing key ({spec.doc})")
+                what = f"section [{full}]" if spec.unit == "table" else "key"
+                raise self.fail(full, f"missing {what} ({spec.doc})")
 
     def value(
         self,
