@@ -110,3 +110,12 @@ def test_exported_deck_reproduces_run_in_ngspice_command_line(topology: str, tmp
     assert set(values) == {"vout_dc_v", "ripple_pp_v", "iout_dc_a"}, out.stdout[-2000:]
     for key, value in values.items():
         assert value == pytest.approx(result.metrics[key], rel=5e-3), key
+
+
+def test_user_reference_is_current() -> None:
+    # docs/reference.md carries the key and figure tables generated from the code; regenerate with
+    # `python -m simkit.docgen` when this fails.
+    from simkit import docgen
+
+    text = (ROOT / "docs" / "reference.md").read_text("utf-8")
+    assert docgen.render(text) == text

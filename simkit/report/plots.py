@@ -44,13 +44,20 @@ def run_figure_bytes(result: RunResult, fmt: str = "png") -> bytes:
     t = w.time[sel] - t0
     fig, axes = plt.subplots(3, 1, figsize=(8.0, 9.0), constrained_layout=True)
     ax = axes[0]
-    ax.plot(t, w.v(c.output)[sel], color=COLOURS["out"], lw=1.6, label=f"output (node {c.output})")
+    ax.plot(t, w.v(c.output)[sel], color=COLOURS["out"], lw=1.6, label=f"output (node {c.output}, left axis)")
+    handles, labels = ax.get_legend_handles_labels()
     if c.rectified != c.output:
-        ax.plot(t, w.v(c.rectified)[sel], color=COLOURS["rect"], lw=1.0, ls="--",
-                label=f"rectifier output (node {c.rectified})")
+        # The rectifier node swings far more than the output: give it its own axis.
+        axr = ax.twinx()
+        axr.plot(t, w.v(c.rectified)[sel], color=COLOURS["rect"], lw=1.0, ls="--",
+                 label=f"rectifier output (node {c.rectified}, right axis)")
+        axr.yaxis.set_major_formatter(Eng(unit="V"))
+        axr.set_ylabel("rectifier output")
+        h2, l2 = axr.get_legend_handles_labels()
+        handles, labels = handles + h2, labels + l2
     ax.set_title(f"Output voltage in steady state, last {round((t1 - t0) / T)} periods")
-    ax.set_ylabel("voltage")
-    ax.legend(loc="best", fontsize=8)
+    ax.set_ylabel("output voltage")
+    ax.legend(handles, labels, loc="upper right", fontsize=8)
 
     ax = axes[1]
     for k, d in enumerate(c.diodes):
