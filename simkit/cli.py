@@ -46,7 +46,7 @@ def cli() -> None:
 
 
 @cli.command()
-@click.argument("design", type=click.Path(dir_okay=False))
+@click.argument("design", type=click.Path())
 @click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
 @click.option("--json", "as_json", is_flag=True, help="Print exactly one JSON document on stdout.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), help="Also write result.json, "
@@ -79,7 +79,7 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
 
 
 @cli.command()
-@click.argument("design", type=click.Path(dir_okay=False))
+@click.argument("design", type=click.Path())
 @click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
 @click.option("-o", "output", type=click.Path(dir_okay=False), help="Write the deck to this file "
               "instead of stdout (an existing file is kept unless --force).")

@@ -6,9 +6,9 @@
 For each example two decks: ``NAME.cir``, the steady-state deck exactly as
 ``simkit netlist`` prints it, and ``NAME.switch-on.cir``, the switch-on run.  The
 switch-on deck is pure generation and must match to the byte; the steady-state deck
-carries initial conditions found by simulation, so its numbers are compared to a
-relative 1e-4 (a different ngspice build may differ in the last digits) and all other
-text exactly.
+carries initial conditions found by simulation: the state where the last chunk started,
+which any path to the periodic state reaches only within the settle tolerance, so its
+numbers are compared to a relative 2e-3 and all other text exactly.
 """
 
 from __future__ import annotations
@@ -70,7 +70,7 @@ def compare(expected: str, actual: str, exact: bool) -> str | None:
     if len(ea) != len(aa):
         return f"{len(aa)} lines, golden has {len(ea)}"
     for k, (x, y) in enumerate(zip(ea, aa, strict=True), start=1):
-        ok = (x == y) if exact else (_same_line(x, y, 1e-4) or (x.startswith("* ") and y.startswith("* ")))
+        ok = (x == y) if exact else (_same_line(x, y, 2e-3) or (x.startswith("* ") and y.startswith("* ")))
         if not ok:
             return f"line {k}: golden {x!r}, now {y!r}"
     return None

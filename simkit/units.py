@@ -84,11 +84,13 @@ UNIT_EXAMPLES: dict[str, str] = {
     "": '"10" or "2.5"',
 }
 
-_NUMBER = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
+# [0-9], not \d: \d also matches other scripts' digits, which float() would quietly accept.
+_NUMBER = r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
+_NUMBER_RE = re.compile(_NUMBER)
 _PREFIX_ALT = "Meg|meg|MEG|[fpnuµμmkKMG]"
-_VALUE_RE = re.compile(rf"^(?P<num>{_NUMBER})\s*(?P<prefix>{_PREFIX_ALT})?(?P<unit>[^\d\s].*)?$")
+_VALUE_RE = re.compile(rf"^(?P<num>{_NUMBER})\s*(?P<prefix>{_PREFIX_ALT})?(?P<unit>[^0-9\s].*)?$")
 # "2k2" style: the prefix takes the place of the decimal point ("4R7" = 4.7).
-_INFIX_RE = re.compile(r"^(?P<a>\d+)(?P<prefix>[pnuµμmkKMGR])(?P<b>\d+)(?P<unit>[^\d\s].*)?$")
+_INFIX_RE = re.compile(r"^(?P<a>[0-9]+)(?P<prefix>[pnuµμmkKMGR])(?P<b>[0-9]+)(?P<unit>[^0-9\s].*)?$")
 
 
 class UnitError(ValueError):
@@ -222,18 +224,13 @@ def parse_percent(value: object) -> float:
         if _has_control(value):
             raise UnitError("the value contains a line break or control character")
         text = value.strip()
-        if text.endswith("%"):
-            try:
-                v = float(text[:-1].strip())
-            except ValueError:
-                raise UnitError(f'{value!r} is not a percentage such as "10%"') from None
-            if not math.isfinite(v):
-                raise UnitError(f'{value!r} is not a percentage such as "10%"')
-            return v / 100.0
-        try:
-            return parse_percent(float(text))
-        except ValueError:
-            raise UnitError(f'{value!r} is not a percentage such as "10%"') from None
+        number = text[:-1].strip() if text.endswith("%") else text
+        if not _NUMBER_RE.fullmatch(number):  # float() would take "nan", "1_0" and other scripts' digits
+            raise UnitError(f'{value!r} is not a percentage such as "10%"')
+        v = float(number)
+        if not math.isfinite(v):
+            raise UnitError(f'{value!r} is not a percentage such as "10%"')
+        return v / 100.0 if text.endswith("%") else parse_percent(v)
     raise UnitError(f'got {_type_name(value)}, expected a percentage such as "10%"')
 
 

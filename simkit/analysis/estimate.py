@@ -11,8 +11,6 @@ from __future__ import annotations
 
 import math
 
-from scipy.optimize import brentq
-
 from simkit.design.model import Design
 from simkit.netlist.circuit import Circuit
 from simkit.parts.diodes import forward_drop
@@ -23,7 +21,16 @@ def conduction_half_angle(rs_over_nrl: float) -> float:
     k = math.pi * max(rs_over_nrl, 0.0)
     if k <= 1e-12:
         return 0.0
-    return brentq(lambda p: math.tan(p) - p - k, 1e-9, math.pi / 2 - 1e-9, xtol=1e-12)
+    # tan(p) - p rises monotonically from 0 to infinity on (0, pi/2): bisection is enough
+    # (and keeps scipy's import time out of every run).
+    lo, hi = 0.0, math.pi / 2
+    for _ in range(80):
+        mid = 0.5 * (lo + hi)
+        if math.tan(mid) - mid < k:
+            lo = mid
+        else:
+            hi = mid
+    return 0.5 * (lo + hi)
 
 
 def _dc_chain(design: Design) -> tuple[float, float, float | None]:

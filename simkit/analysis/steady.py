@@ -39,6 +39,8 @@ MAX_PERIODS = 400
 #: Finite-difference step of the shooting Jacobian, relative to the state's scale.  Well above
 #: the period-to-period integration noise (about 1e-5 at reltol 1e-4).
 FD_STEP = 1e-3
+#: Steps per period of the runs that build the shooting Jacobian.
+JACOBIAN_STEPS = 250
 SAFE_OPTIONS = ("gmin=1e-10", "itl4=100", "rshunt=1e10")
 
 
@@ -64,9 +66,10 @@ class SteadyState:
     notes: list[str] = field(default_factory=list)
 
 
-def transient(design: Design, circuit: Circuit, tstop: float, safe: bool = False) -> Transient:
+def transient(design: Design, circuit: Circuit, tstop: float, safe: bool = False,
+              steps: int | None = None) -> Transient:
     sim = design.simulation
-    tmax = circuit.period / sim.steps_per_period
+    tmax = circuit.period / (steps or sim.steps_per_period)
     if safe:
         return Transient(tstop=tstop, tmax=tmax, reltol=max(sim.reltol, 1e-3), abstol=1e-8,
                          method="gear", extra_options=SAFE_OPTIONS)
@@ -74,13 +77,16 @@ def transient(design: Design, circuit: Circuit, tstop: float, safe: bool = False
 
 
 def run_span(engine: Engine, design: Design, circuit: Circuit, tstop: float, ics: dict[str, float],
-             meas: list[str] | None = None) -> Run:
-    """Run one span; on convergence trouble retry once with safer options, then give up."""
-    deck = render(circuit, transient(design, circuit, tstop), ics, meas)
+             meas: list[str] | None = None, steps: int | None = None) -> Run:
+    """Run one span; on convergence trouble retry once with safer options, then give up.
+
+    ``steps`` overrides the design's steps per period (coarser runs for Jacobians).
+    """
+    deck = render(circuit, transient(design, circuit, tstop, steps=steps), ics, meas)
     try:
         return Run(deck, tstop, engine.run(deck, tstop), ics)
     except SimulationError as first:
-        safe_deck = render(circuit, transient(design, circuit, tstop, safe=True), ics, meas)
+        safe_deck = render(circuit, transient(design, circuit, tstop, safe=True, steps=steps), ics, meas)
         try:
             return Run(safe_deck, tstop, engine.run(safe_deck, tstop), ics, retried=True)
         except SimulationError as second:
@@ -188,7 +194,6 @@ def steady_state(engine: Engine, design: Design, circuit: Circuit, vscale: float
     notes: list[str] = []
     scale = max(design.source.vpeak * vscale * 1e-3, 1e-9)
     newton_failed = False
-    extrapolated = 0
     while True:
         run = run_span(engine, design, circuit, span, ics)
         total += span
@@ -214,9 +219,17 @@ def steady_state(engine: Engine, design: Design, circuit: Circuit, vscale: float
         slow = remaining > 2 * CHUNK_PERIODS or (ok and drift >= tol)
         if not slow:
             continue
-        if shooting < 2 and drift > 100 * tol and not newton_failed:
-            # Far from periodic: Newton on the one-period map.
-            new_ics, used = shoot(engine, design, circuit, ics)
+        # A slow mode drifting geometrically: extrapolate along it, from the states at the
+        # chunk's last three period boundaries (no restart in between).  Anything else (far
+        # from periodic, or an oscillating choke-capacitor mode): Newton on the period map.
+        xa, xb, xc = (state_at(circuit, run.waves, k * T) for k in
+                      (CHUNK_PERIODS - 2, CHUNK_PERIODS - 1, CHUNK_PERIODS))
+        jump = extrapolate(xa, xb, xc, circuit) if drift < 100 * tol else None
+        if jump is not None:
+            ics = jump
+            hist.clear()
+        elif shooting < 2 and not newton_failed:
+            new_ics, used = shoot(engine, design, circuit, ics, target=0.1 * tol)
             total += used * T
             shooting += 1
             if new_ics is None:
@@ -224,16 +237,6 @@ def steady_state(engine: Engine, design: Design, circuit: Circuit, vscale: float
             else:
                 ics = new_ics
                 hist.clear()
-        else:
-            # Close, but a slow mode drifts geometrically: extrapolate along it, from the
-            # states at the chunk's last three period boundaries (no restart in between).
-            xa, xb, xc = (state_at(circuit, run.waves, k * T) for k in
-                          (CHUNK_PERIODS - 2, CHUNK_PERIODS - 1, CHUNK_PERIODS))
-            jump = extrapolate(xa, xb, xc, circuit)
-            if jump is not None:
-                ics = jump
-                hist.clear()
-                extrapolated += 1
 
 
 def extrapolate(x0: dict[str, float], x1: dict[str, float], x2: dict[str, float],
@@ -289,7 +292,7 @@ def _change(hist: list[metrics.PeriodStats], scale: float) -> float:
 
 
 def shoot(engine: Engine, design: Design, circuit: Circuit, x0: dict[str, float],
-          iterations: int = 4) -> tuple[dict[str, float] | None, int]:
+          iterations: int = 4, target: float = 1e-6) -> tuple[dict[str, float] | None, int]:
     """Newton's method on x = Phi_T(x), the one-period map of the state.
 
     The Jacobian comes from finite differences (one one-period run per state variable).
@@ -304,9 +307,9 @@ def shoot(engine: Engine, design: Design, circuit: Circuit, x0: dict[str, float]
     scales = np.array([vpk if n.startswith("C") else max(i_scale, 1e-3) for n in names])
     used = 0
 
-    def phi(x: np.ndarray) -> np.ndarray:
+    def phi(x: np.ndarray, steps: int | None = None) -> np.ndarray:
         nonlocal used
-        run = run_span(engine, design, circuit, T, dict(zip(names, x.tolist(), strict=True)))
+        run = run_span(engine, design, circuit, T, dict(zip(names, x.tolist(), strict=True)), steps=steps)
         used += 1
         st = end_state(circuit, run.waves)
         return np.array([st[n] for n in names])
@@ -316,15 +319,18 @@ def shoot(engine: Engine, design: Design, circuit: Circuit, x0: dict[str, float]
     best = float(np.max(np.abs(fx) / scales))
     start = best
     for _ in range(iterations):
-        if best < 1e-7:
+        if best < target:
             break
+        # The Jacobian only steers Newton, so its columns use a coarser step (the base point
+        # too, so the differences stay consistent); residuals use the design's own step.
         h = FD_STEP * scales
-        px = fx + x
+        coarse = JACOBIAN_STEPS if design.simulation.steps_per_period > JACOBIAN_STEPS else None
+        px = phi(x, coarse) if coarse else fx + x
         jac = np.empty((len(x), len(x)))
         for j in range(len(x)):
             xp = x.copy()
             xp[j] += h[j]
-            jac[:, j] = (phi(xp) - px) / h[j]
+            jac[:, j] = (phi(xp, coarse) - px) / h[j]
         try:
             dx = np.linalg.solve(jac - np.eye(len(x)), -fx)
         except np.linalg.LinAlgError:

@@ -138,8 +138,8 @@ def _set_path(root: Any, parts: list[str], value: Any, file: str, path: str) -> 
                 node = node[idx]
         elif isinstance(node, dict):
             if part.isdigit():
-                parent = ".".join(parts[:i]) or "the top level"
-                raise DesignError(f"--set {path}: {parent!r} is a table, not a list; it has no position {part}",
+                parent = repr(".".join(parts[:i])) if i else "the top level"
+                raise DesignError(f"--set {path}: {parent} is a table, not a list; it has no position {part}",
                                   file=file)
             if last:
                 node[part] = value
