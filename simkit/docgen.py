@@ -29,6 +29,7 @@ _TITLES = {
     "load": "[load]",
     "bleeder": "[bleeder]",
     "simulation": "[simulation]",
+    "spread": "[spread]",
 }
 
 

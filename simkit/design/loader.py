@@ -31,6 +31,7 @@ from simkit.design.model import (
     Rectifier,
     SimulationOptions,
     Source,
+    SpreadOptions,
 )
 from simkit.errors import DesignError
 from simkit.parts import diodes
@@ -223,6 +224,19 @@ class _Reader:
             raise self.fail(full, f"must be at most {maximum:g}{what}, got {v:g}")
         return v
 
+    def percent(self, table: Mapping[str, Any], key: str, path: str, maximum: float = 0.5) -> float | None:
+        """A tolerance such as "10%" as a fraction in [0, maximum)."""
+        full = f"{path}.{key}" if path else key
+        if key not in table:
+            return None
+        try:
+            v = parse_percent(table[key])
+        except UnitError as exc:
+            raise self.fail(full, str(exc)) from None
+        if not 0 <= v < maximum:
+            raise self.fail(full, f"must be between 0% and {maximum * 100:g}%, got {v * 100:g}%")
+        return v
+
     def integer(self, table: Mapping[str, Any], key: str, path: str, default: int, minimum: int,
                 maximum: int) -> int:
         full = f"{path}.{key}" if path else key
@@ -303,6 +317,7 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
     load = _load(rd, data)
     bleeder = _bleeder(rd, data)
     sim = _simulation(rd, data)
+    spread = _spread(rd, data)
 
     # Combinations that cannot be built.
     if rectifier.topology in ("half-wave", "centre-tap", "bridge") and not filters and load is None \
@@ -327,6 +342,7 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
         load=load,
         bleeder=bleeder,
         simulation=sim,
+        spread=spread,
         note=note,
         origin=origin,
     )
@@ -341,14 +357,7 @@ def _source(rd: _Reader, data: Mapping[str, Any]) -> Source:
     freq = rd.value(t, "frequency", "source", "Hz", above=0, maximum=100e3)
     res = rd.value(t, "resistance", "source", "ohm", minimum=0, maximum=1e9)
     ind = rd.value(t, "inductance", "source", "H", default=0.0, minimum=0, maximum=1e3)
-    tol = None
-    if "mains_tolerance" in t:
-        try:
-            tol = parse_percent(t["mains_tolerance"])
-        except UnitError as exc:
-            raise rd.fail("source.mains_tolerance", str(exc)) from None
-        if not 0 <= tol < 0.5:
-            raise rd.fail("source.mains_tolerance", f"must be between 0% and 50%, got {tol * 100:g}%")
+    tol = rd.percent(t, "mains_tolerance", "source")
     assert vrms is not None and freq is not None and res is not None and ind is not None
     return Source(kind="sine", vrms=vrms, frequency=freq, resistance=res, inductance=ind,
                   mains_tolerance=tol) if kind == "sine" else _unreachable()
@@ -381,7 +390,11 @@ def _rectifier(rd: _Reader, data: Mapping[str, Any]) -> Rectifier:
             f"applies to doubler and cascade only; for a {topology}, put the reservoir in "
             '[[filter]] c = "..."',
         )
-    return Rectifier(topology=topology, diode=diode, stages=stages, capacitance=cap)  # type: ignore[arg-type]
+    cap_tol = rd.percent(t, "capacitance_tolerance", "rectifier")
+    if cap_tol is not None and cap is None:
+        raise rd.fail("rectifier.capacitance_tolerance", "needs capacitance (doubler and cascade only)")
+    return Rectifier(topology=topology, diode=diode, stages=stages, capacitance=cap,  # type: ignore[arg-type]
+                     capacitance_tolerance=cap_tol)
 
 
 def _diode(rd: _Reader, spec: Any) -> DiodeModel:
@@ -397,7 +410,7 @@ def _diode(rd: _Reader, spec: Any) -> DiodeModel:
         raise rd.fail(key, f'expected a part name such as "1N4007" or an inline table, got {_show(spec)}')
     rd.check_keys(spec, schema.DIODE_INLINE, key)
     is_ = rd.value(spec, "is", key, "A", above=0, maximum=1.0)
-    n = rd.value(spec, "n", key, "", default=1.0, minimum=0.5, maximum=10.0)
+    n = rd.value(spec, "n", key, "", default=1.0, minimum=0.01, maximum=10.0)
     rs = rd.value(spec, "rs", key, "ohm", default=0.0, minimum=0, maximum=1e6)
     bv = rd.value(spec, "bv", key, "V", above=0)
     tt = rd.value(spec, "tt", key, "s", default=0.0, minimum=0, maximum=1e-3)
@@ -441,7 +454,8 @@ def _filters(rd: _Reader, data: Mapping[str, Any]) -> list[FilterSection]:
         esr = rd.value(sec, "esr", path, "ohm", default=0.0, minimum=0, maximum=1e6)
         dcr = rd.value(sec, "dcr", path, "ohm", default=0.0, minimum=0, maximum=1e9)
         assert value is not None and esr is not None and dcr is not None
-        out.append(FilterSection(kind=kind, value=value, esr=esr, dcr=dcr))  # type: ignore[arg-type]
+        tol = rd.percent(sec, "tolerance", path)
+        out.append(FilterSection(kind=kind, value=value, esr=esr, dcr=dcr, tolerance=tol))  # type: ignore[arg-type]
     return out
 
 
@@ -456,12 +470,14 @@ def _load(rd: _Reader, data: Mapping[str, Any]) -> Load | None:
             raise rd.fail("load.i", 'belongs to kind "current"; a resistor load takes r')
         if "r" not in t:
             raise rd.fail("load.r", 'missing key: kind "resistor" needs r, e.g. r = "5k"')
-        return Load(kind="resistor", r=rd.value(t, "r", "load", "ohm", above=0, maximum=1e12))
+        return Load(kind="resistor", r=rd.value(t, "r", "load", "ohm", above=0, maximum=1e12),
+                    tolerance=rd.percent(t, "tolerance", "load"))
     if "r" in t:
         raise rd.fail("load.r", 'belongs to kind "resistor"; a current load takes i')
     if "i" not in t:
         raise rd.fail("load.i", 'missing key: kind "current" needs i, e.g. i = "100m"')
-    return Load(kind="current", i=rd.value(t, "i", "load", "A", above=0, maximum=1e3))
+    return Load(kind="current", i=rd.value(t, "i", "load", "A", above=0, maximum=1e3),
+                tolerance=rd.percent(t, "tolerance", "load"))
 
 
 def _bleeder(rd: _Reader, data: Mapping[str, Any]) -> Bleeder | None:
@@ -471,7 +487,16 @@ def _bleeder(rd: _Reader, data: Mapping[str, Any]) -> Bleeder | None:
     rd.check_keys(t, schema.BLEEDER, "bleeder")
     r = rd.value(t, "r", "bleeder", "ohm", above=0, maximum=1e12)
     assert r is not None
-    return Bleeder(r=r)
+    return Bleeder(r=r, tolerance=rd.percent(t, "tolerance", "bleeder"))
+
+
+def _spread(rd: _Reader, data: Mapping[str, Any]) -> SpreadOptions:
+    t = rd.table(data, "spread", "spread", required=False)
+    if t is None:
+        return SpreadOptions()
+    rd.check_keys(t, schema.SPREAD, "spread")
+    dist = rd.choice(t, "distribution", "spread", ("uniform", "normal"), default="uniform")
+    return SpreadOptions(distribution=dist)  # type: ignore[arg-type]
 
 
 def _simulation(rd: _Reader, data: Mapping[str, Any]) -> SimulationOptions:

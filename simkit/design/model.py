@@ -72,6 +72,7 @@ class Rectifier:
     diode: DiodeModel
     stages: int = 1  # cascade only
     capacitance: float | None = None  # F, doubler and cascade stage capacitors
+    capacitance_tolerance: float | None = None  # fraction, for spread
 
 
 @dataclass(frozen=True)
@@ -82,6 +83,7 @@ class FilterSection:
     value: float  # F for c, H for l, ohm for r
     esr: float = 0.0  # ohm, c only
     dcr: float = 0.0  # ohm, l only
+    tolerance: float | None = None  # fraction of value, for spread
 
 
 @dataclass(frozen=True)
@@ -89,11 +91,18 @@ class Load:
     kind: LoadKind
     r: float | None = None  # ohm, resistor
     i: float | None = None  # A, current
+    tolerance: float | None = None  # fraction, for spread
 
 
 @dataclass(frozen=True)
 class Bleeder:
     r: float  # ohm
+    tolerance: float | None = None  # fraction, for spread
+
+
+@dataclass(frozen=True)
+class SpreadOptions:
+    distribution: Literal["uniform", "normal"] = "uniform"  # normal: tolerance = 3 sigma
 
 
 @dataclass(frozen=True)
@@ -117,6 +126,7 @@ class Design:
     load: Load | None = None
     bleeder: Bleeder | None = None
     simulation: SimulationOptions = field(default_factory=SimulationOptions)
+    spread: SpreadOptions = field(default_factory=SpreadOptions)
     note: str = ""
     origin: str = "<design>"  # file the design came from, for messages
 

@@ -29,6 +29,7 @@ TOP: dict[str, Key] = {
     "load": Key("table", "the load across the output (omit for an idle supply)"),
     "bleeder": Key("table", "a bleeder resistor across the output"),
     "simulation": Key("table", "how the analyses run"),
+    "spread": Key("table", "how `simkit spread` draws values within their tolerances"),
 }
 
 SOURCE: dict[str, Key] = {
@@ -57,11 +58,12 @@ RECTIFIER: dict[str, Key] = {
     ),
     "stages": Key("int", "cascade only: number of stages (n stages give about 2n x Vpeak)", default="1"),
     "capacitance": Key("F", "doubler and cascade: each stage capacitor", default="required there"),
+    "capacitance_tolerance": Key("%", "tolerance of capacitance, for `simkit spread`", default="none"),
 }
 
 DIODE_INLINE: dict[str, Key] = {
     "is": Key("A", "saturation current", required=True),
-    "n": Key("", "emission coefficient", default="1"),
+    "n": Key("", "emission coefficient (down to 0.01 for a near-ideal diode)", default="1"),
     "rs": Key("ohm", "series resistance", default="0"),
     "bv": Key("V", "reverse breakdown voltage", default="none (no breakdown modelled)"),
     "tt": Key("s", "transit time (stored charge)", default="0"),
@@ -77,6 +79,7 @@ FILTER: dict[str, Key] = {
     "l": Key("H", "series choke; a first l makes a choke-input filter"),
     "dcr": Key("ohm", "winding resistance of l", default="0"),
     "r": Key("ohm", "series resistor"),
+    "tolerance": Key("%", "tolerance of the section's c, l or r value, for `simkit spread`", default="none"),
 }
 
 LOAD: dict[str, Key] = {
@@ -87,10 +90,21 @@ LOAD: dict[str, Key] = {
         "load current (kind current); it fades out below 5 V so an empty supply is not "
         "driven negative",
     ),
+    "tolerance": Key("%", "tolerance of r or i, for `simkit spread`", default="none"),
 }
 
 BLEEDER: dict[str, Key] = {
     "r": Key("ohm", "bleeder resistance across the output", required=True),
+    "tolerance": Key("%", "tolerance of r, for `simkit spread`", default="none"),
+}
+
+SPREAD: dict[str, Key] = {
+    "distribution": Key(
+        "str",
+        '"uniform" (anywhere within +- tolerance) or "normal" (the tolerance is 3 standard '
+        "deviations), for `simkit spread`",
+        default='"uniform"',
+    ),
 }
 
 SIMULATION: dict[str, Key] = {
@@ -113,4 +127,5 @@ SECTIONS: dict[str, dict[str, Key]] = {
     "load": LOAD,
     "bleeder": BLEEDER,
     "simulation": SIMULATION,
+    "spread": SPREAD,
 }
