@@ -10,11 +10,20 @@ import numpy as np
 
 from simkit import __version__
 from simkit.analysis import metrics as mx
-from simkit.analysis.steady import MEASURE_PERIODS, Run, SteadyState, steady_state, switch_on
+from simkit.analysis.steady import (
+    MEASURE_PERIODS,
+    KeyedRun,
+    Run,
+    SteadyState,
+    end_state,
+    keyed_steady,
+    steady_state,
+    switch_on,
+)
 from simkit.design.loader import design_to_inputs
 from simkit.design.model import Design
-from simkit.engine.ngspice import Engine, get_engine
-from simkit.netlist.build import build_circuit
+from simkit.engine.ngspice import Engine, Waveforms, get_engine
+from simkit.netlist.build import build_circuit, keying_drive
 from simkit.netlist.circuit import Circuit
 from simkit.units import spice
 
@@ -34,6 +43,31 @@ FIGURES: dict[str, tuple[str, str]] = {
     "source_rms_a": ("A", "RMS winding current (each half for centre-tap)"),
     "source_va": ("VA", "apparent power drawn from the winding(s)"),
     "settle_time_s": ("s", "simulated time until steady state was declared"),
+    # Start-up run (every design; the warm-up figures only when a load has a warmup).
+    "rise_time_s": ("s", "from switch-on until the output first reaches 90 % of vout_dc_v"),
+    "cap_peak_warmup_v": ("V", "highest capacitor voltage before the loads draw current (heaters warming)"),
+    "vout_warmup_v": ("V", "highest output voltage before the loads draw current"),
+    # Battery and inverter (with a [battery]).
+    "battery_current_a": ("A", "mean battery current in steady state"),
+    "battery_peak_current_a": ("A", "highest battery current in steady state"),
+    "battery_voltage_v": ("V", "mean battery terminal voltage under load"),
+    "input_power_w": ("W", "mean power drawn from the battery"),
+    "output_power_w": ("W", "mean power the inverter delivers"),
+    "efficiency": ("", "output_power_w / input_power_w"),
+    "runtime_h": ("h", "usable capacity / battery_current_a (no Peukert correction)"),
+    # Steady keying (a keyed load; the first one when there are several).
+    "vout_keydown_v": ("V", "mean output over the key-down intervals of a keying cycle"),
+    "vout_keyup_v": ("V", "mean output over the key-up intervals of a keying cycle"),
+    "sag_v": ("V", "vout_keyup_v - vout_keydown_v"),
+    "sag_pct": ("%", "sag_v as a percentage of vout_keyup_v"),
+    "recovery_time_s": ("s", "after the longest key-down edge, until the output stays within 1 % of vout_keydown_v"),
+    "overshoot_v": ("V", "highest output after key-up above vout_keyup_v"),
+    "ripple_keydown_pp_v": ("V", "output ripple over the last period of the longest key-down interval"),
+    "keying_cycle_s": ("s", "length of one keying cycle (one repetition of the Morse text)"),
+    "chirp_hz": ("Hz", "pushing_hz_per_v x the output's peak-to-peak change during a dot"),
+    "battery_keydown_current_a": ("A", "mean battery current while key-down, in steady keying"),
+    "battery_keyup_current_a": ("A", "mean battery current while key-up, in steady keying"),
+    "runtime_keyed_h": ("h", "usable capacity / mean battery current at the keying duty"),
 }
 
 
@@ -47,6 +81,7 @@ class RunResult:
     steady: SteadyState
     start: Run
     window: tuple[float, float] = (0.0, 0.0)
+    keyed: KeyedRun | None = None
     extra: dict[str, Any] = field(default_factory=dict)
 
     def to_json(self) -> dict[str, Any]:
@@ -72,16 +107,32 @@ def _clean(v: Any) -> Any:
 
 
 def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0) -> RunResult:
-    """Run both analyses of a design and compute every figure."""
+    """Run the analyses of a design and compute every figure.
+
+    The steady state first (its output voltage is the target the start-up run watches), then
+    the start-up run from empty capacitors, then, for keyed loads, steady keying.
+    """
     eng = engine or get_engine()
-    start_circuit = build_circuit(design, phase_deg=design.simulation.switch_on_phase, vscale=vscale)
-    start = switch_on(eng, design, start_circuit)
     circuit = build_circuit(design, phase_deg=0.0, vscale=vscale)
     steady = steady_state(eng, design, circuit, vscale)
-    return figures(design, circuit, steady, start)
+    w = steady.final.waves
+    target = mx.mean(w.time, w.v(circuit.output), steady.final.tstop - MEASURE_PERIODS * circuit.period,
+                     steady.final.tstop)
+    start_circuit = build_circuit(design, phase_deg=design.simulation.switch_on_phase, vscale=vscale, mode="start")
+    start = switch_on(eng, design, start_circuit, target=target if target > 0 else None)
+    keyed = None
+    if design.keyed:
+        mean_circuit = build_circuit(design, phase_deg=0.0, vscale=vscale, mode="mean")
+        mean = steady_state(eng, design, mean_circuit, vscale)
+        keyed_circuit = build_circuit(design, phase_deg=0.0, vscale=vscale, mode="keyed")
+        cycle = max(keying_drive(ld).period or 0.0 for ld in design.keyed)
+        keyed = keyed_steady(eng, design, keyed_circuit, end_state(mean_circuit, mean.final.waves), cycle)
+        keyed.circuit = keyed_circuit  # type: ignore[attr-defined]
+    return figures(design, circuit, steady, start, start_circuit, keyed)
 
 
-def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run) -> RunResult:
+def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, start_circuit: Circuit | None = None,
+            keyed: KeyedRun | None = None) -> RunResult:
     w = steady.final.waves
     T = circuit.period
     t1 = steady.final.tstop
@@ -90,28 +141,37 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run) -
     vout = w.v(circuit.output)
     warnings: list[str] = list(steady.notes)
     parts: dict[str, dict[str, Any]] = {}
+    sc = start_circuit or circuit
 
     m: dict[str, float] = {}
     m["vout_dc_v"] = mx.mean(t, vout, t0, t1)
     m["ripple_pp_v"] = mx.peak_to_peak(t, vout, t0, t1)
     m["ripple_rms_v"] = mx.ac_rms(t, vout, t0, t1)
-    m["iout_dc_a"] = mx.mean(t, w.i(circuit.load_sense), t0, t1) if circuit.load_sense else 0.0
+    m["iout_dc_a"] = sum(mx.mean(t, w.i(ld.sense), t0, t1) for ld in circuit.loads)
 
-    ts = start.waves.time
+    sw = start.waves
+    ts = sw.time
     s0, s1 = float(ts[0]), float(ts[-1])
     half = min(s0 + T / 2, s1)
+    refined = start.refined
+    vac = design.rectifier.diode.vacuum
     for d in circuit.diodes:
         i = w.i(d.sense)
         vrev = w.v(d.cathode) - w.v(d.anode)
-        i_on = start.waves.i(d.sense)
-        vrev_on = start.waves.v(d.cathode) - start.waves.v(d.anode)
+        i_on = sw.i(d.sense)
+        vrev_on = sw.v(d.cathode) - sw.v(d.anode)
+        surge = float(np.max(i_on[: np.searchsorted(ts, start.deck_span or s1, side="right")]))
+        if refined is not None:
+            surge = max(surge, float(np.max(refined.waves.i(d.sense))))
+        else:
+            surge = float(np.max(i_on))
         parts[d.name] = {
-            "role": "rectifier diode",
+            "role": "rectifier plate (vacuum)" if vac is not None else "rectifier diode",
             "peak_a": mx.peak(t, i, t0, t1),
             "avg_a": mx.mean(t, i, t0, t1),
             "rms_a": mx.rms(t, i, t0, t1),
             "piv_v": mx.peak(t, vrev, t0, t1),
-            "surge_peak_a": float(np.max(i_on)),
+            "surge_peak_a": surge,
             "surge_i2t_a2s": mx.integral_square(ts, np.maximum(i_on, 0.0), s0, half),
             "switch_on_piv_v": float(np.max(vrev_on)),
         }
@@ -125,10 +185,10 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run) -
     cap_peaks: list[float] = []
     reservoir_currents: list[float] = []
     for c in circuit.capacitors:
-        if c.role == "snubber":
+        if c.role in ("snubber", "aux"):
             continue
         v = w.v(c.plus) - w.v(c.minus)
-        v_on = start.waves.v(c.plus) - start.waves.v(c.minus)
+        v_on = sw.v(c.plus) - sw.v(c.minus)
         ic = w.i(c.sense)
         peak = max(float(np.max(np.abs(v[t >= t0]))), float(np.max(np.abs(v_on))))
         entry = {
@@ -162,28 +222,32 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run) -
             "dc_a": mx.mean(t, i, t0, t1),
             "rms_a": mx.rms(t, i, t0, t1),
             "peak_a": mx.peak(t, np.abs(i), t0, t1),
-            "switch_on_peak_a": float(np.max(np.abs(start.waves.i(ind.name)))),
+            "switch_on_peak_a": float(np.max(np.abs(sw.i(ind.name)))),
         }
         if ind.dcr:
             parts[ind.name]["dcr_dissipation_w"] = mx.rms(t, i, t0, t1) ** 2 * ind.dcr
 
     for r in circuit.resistors:
-        if r.role in ("esr", "dcr", "snubber"):
+        if r.role in ("esr", "dcr", "snubber", "load"):
             continue
         v = w.v(r.a) - w.v(r.b)
         parts[r.name] = {
-            "role": {"filter": "filter resistor", "load": "load", "bleeder": "bleeder",
-                     "winding": "winding resistance"}[r.role],
+            "role": {"filter": "filter resistor", "bleeder": "bleeder", "winding": "winding resistance"}[r.role],
             "value_ohm": r.value,
             "dissipation_w": mx.mean(t, v * v, t0, t1) / r.value,
             "rms_a": mx.rms(t, v, t0, t1) / r.value,
             "peak_v": mx.peak(t, np.abs(v), t0, t1),
         }
-    if circuit.load_kind == "current" and circuit.load_sense:
-        i = w.i(circuit.load_sense)
-        vl = w.v(circuit.output)
-        parts["BLOAD"] = {"role": "load", "dc_a": mx.mean(t, i, t0, t1),
-                          "dissipation_w": mx.mean(t, i * vl, t0, t1)}
+    for lref in circuit.loads:
+        ld = design.loads[lref.index]
+        i = w.i(lref.sense)
+        vl = w.v(lref.node)
+        entry = {"role": f"{ld.kind} load" + (f" after filter section {ld.at}" if ld.at is not None else ""),
+                 "node": lref.node, "dc_v": mx.mean(t, vl, t0, t1), "dc_a": mx.mean(t, i, t0, t1),
+                 "dissipation_w": mx.mean(t, i * vl, t0, t1)}
+        if ld.kind == "resistor":
+            entry["value_ohm"] = ld.r
+        parts[lref.name] = entry
 
     src_rms: list[float] = []
     va = 0.0
@@ -193,25 +257,158 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run) -
         src_rms.append(irms)
         va += wd.vrms * irms
         parts[wd.name] = {
-            "role": "winding",
+            "role": {"sine": "winding", "transformer": "transformer winding", "inverter": "inverter output"}[
+                design.source.kind],
             "vrms_v": wd.vrms,
             "rms_a": irms,
             "peak_a": mx.peak(t, np.abs(i), t0, t1),
             "apparent_power_va": wd.vrms * irms,
-            "surge_peak_a": float(np.max(np.abs(start.waves.i(wd.name)))),
+            "surge_peak_a": float(np.max(np.abs(sw.i(wd.name)))),
         }
     m["source_rms_a"] = max(src_rms)
     m["source_va"] = va
     m["settle_time_s"] = steady.settle_time
 
+    _start_figures(design, circuit, sc, start, m, warnings)
+    if circuit.battery_nodes:
+        _battery_figures(design, circuit, w, (t0, t1), m)
+    if keyed is not None:
+        _keyed_figures(design, keyed, m, warnings)
+
     if steady.final.retried:
         warnings.append("ngspice needed safer options (method=gear) to converge; figures may be less precise")
     if design.source.resistance == 0 and design.source.inductance == 0:
-        warnings.append("source.resistance is 0: the switch-on surge is limited only by the diode's own "
-                        "resistance; give the winding resistance for a real surge figure")
+        warnings.append("the source has no series resistance: the switch-on surge is limited only by the "
+                        "diode's own resistance; give the winding resistance for a real surge figure")
     if m["vout_dc_v"] < 0:
         warnings.append("the output is negative: check the topology and the load")
-    return RunResult(design, circuit, m, parts, warnings, steady, start, (t0, t1))
+    return RunResult(design, circuit, m, parts, warnings, steady, start, (t0, t1), keyed=keyed)
+
+
+def _start_figures(design: Design, circuit: Circuit, sc: Circuit, start: Run, m: dict[str, float],
+                   warnings: list[str]) -> None:
+    """Rise time and, when loads warm up, the capacitor peak before they draw current."""
+    sw = start.waves
+    v = sw.v(sc.output)
+    target = 0.9 * m["vout_dc_v"]
+    above = np.nonzero(v >= target)[0]
+    if target > 0 and len(above):
+        k = int(above[0])
+        if k > 0:  # interpolate the crossing
+            t0, t1, v0, v1 = sw.time[k - 1], sw.time[k], v[k - 1], v[k]
+            m["rise_time_s"] = float(t0 + (target - v0) * (t1 - t0) / (v1 - v0)) if v1 != v0 else float(t1)
+        else:
+            m["rise_time_s"] = float(sw.time[0])
+    else:
+        m["rise_time_s"] = math.nan
+        warnings.append("the output did not reach 90 % of its steady value in the start-up run")
+    warm = [ld.warmup for ld in design.loads if ld.warmup]
+    if warm:
+        t_on = min(warm)
+        sel = sw.time <= t_on
+        peaks = [float(np.max(np.abs(sw.v(c.plus)[sel] - sw.v(c.minus)[sel])))
+                 for c in sc.capacitors if c.role not in ("snubber", "aux")]
+        m["cap_peak_warmup_v"] = max(peaks) if peaks else 0.0
+        m["vout_warmup_v"] = float(np.max(v[sel]))
+
+
+def _battery_figures(design: Design, circuit: Circuit, w: Waveforms, window: tuple[float, float],
+                     m: dict[str, float]) -> None:
+    b = design.battery
+    assert b is not None
+    t0, t1 = window
+    t = w.time
+    ib = w.v("ib")
+    m["battery_current_a"] = mx.mean(t, ib, t0, t1)
+    m["battery_peak_current_a"] = mx.peak(t, ib, t0, t1)
+    m["battery_voltage_v"] = mx.mean(t, w.v("vt"), t0, t1)
+    p_in = mx.mean(t, w.v("vt") * ib, t0, t1)
+    p_out = sum(mx.mean(t, (w.v(wd.plus) - w.v(wd.minus)) * -w.i(wd.name), t0, t1) for wd in circuit.windings)
+    m["input_power_w"] = p_in
+    m["output_power_w"] = p_out
+    m["efficiency"] = p_out / p_in if p_in > 0 else math.nan
+    m["runtime_h"] = b.capacity * b.usable_fraction / m["battery_current_a"] if m["battery_current_a"] > 0 \
+        else math.inf
+
+
+def _keyed_figures(design: Design, keyed: KeyedRun, m: dict[str, float], warnings: list[str]) -> None:
+    """Sag, recovery and overshoot of the output under steady keying (the first keyed load)."""
+    ld = design.keyed[0]
+    circuit: Circuit = keyed.circuit  # type: ignore[attr-defined]
+    run = keyed.run
+    w = run.waves
+    t = w.time + run.offset
+    out = circuit.output
+    v = w.v(out)
+    T = circuit.period
+    c0, c1 = keyed.window
+    drive = keying_drive(ld)
+    downs = drive.intervals(c0, c1, level=0.999)  # fully key-down, edges excluded
+    ups = _key_up(c0, c1, drive)
+    if not downs or not ups:
+        warnings.append("the keyed run found no whole key-down or key-up interval; keyed figures omitted")
+        return
+
+    def mean_over(iv: list[tuple[float, float]], y: np.ndarray) -> float:
+        total = sum(b - a for a, b in iv)
+        return sum(mx.mean(t, y, a, b) * (b - a) for a, b in iv) / total
+
+    vd = mean_over(downs, v)
+    vu = mean_over(ups, v)
+    m["vout_keydown_v"] = vd
+    m["vout_keyup_v"] = vu
+    m["sag_v"] = vu - vd
+    m["sag_pct"] = 100 * (vu - vd) / vu if vu else math.nan
+    # Recovery: after the longest key-down element's edge, until the output stays within 1 % of vd.
+    a, b = max(downs, key=lambda iv: iv[1] - iv[0])
+    edge = a - (ld.keying.rise if ld.keying else 0.0)
+    sel = (t >= edge) & (t <= b)
+    outside = np.nonzero(np.abs(v[sel] - vd) > 0.01 * abs(vd))[0]
+    if len(outside) == 0:
+        m["recovery_time_s"] = 0.0
+    elif outside[-1] == int(np.count_nonzero(sel)) - 1:
+        m["recovery_time_s"] = math.nan
+        warnings.append("after key-down the output did not settle within 1 % of its key-down mean before key-up")
+    else:
+        m["recovery_time_s"] = float(t[sel][outside[-1] + 1] - edge)
+    # Overshoot at key-up: the highest output in the key-up interval after that element.
+    after = [iv for iv in ups if iv[0] >= b - 1e-12]
+    ua, ub = after[0] if after else ups[0]
+    m["overshoot_v"] = max(mx.peak(t, v, ua, ub) - vu, 0.0)
+    span = min(T, b - a)
+    m["ripple_keydown_pp_v"] = mx.peak_to_peak(t, v, b - span, b)
+    m["keying_cycle_s"] = keyed.cycle
+    if ld.pushing is not None:
+        # The shortest key-down element is the dot; the oscillator follows its node.
+        da, db = min(downs, key=lambda iv: iv[1] - iv[0])
+        node = w.v(out if ld.at is None else circuit.section_nodes[ld.at])
+        m["chirp_hz"] = abs(ld.pushing) * mx.peak_to_peak(t, node, da, db)
+    if not keyed.settled:
+        warnings.append("steady keying was not reached within the run; keyed figures are approximate")
+    if circuit.battery_nodes:
+        ib = w.v("ib")
+        idn = mean_over(downs, ib)
+        iup = mean_over(ups, ib)
+        mean_i = mx.mean(t, ib, c0, c1)
+        m["battery_keydown_current_a"] = idn
+        m["battery_keyup_current_a"] = iup
+        b_ = design.battery
+        assert b_ is not None
+        m["runtime_keyed_h"] = b_.capacity * b_.usable_fraction / mean_i if mean_i > 0 else math.inf
+
+
+def _key_up(c0: float, c1: float, drive: Any) -> list[tuple[float, float]]:
+    """Fully key-up spans of [c0, c1], edges excluded."""
+    not_up = drive.intervals(c0, c1, level=1e-3)
+    out: list[tuple[float, float]] = []
+    cur = c0
+    for a, b in not_up:
+        if a - cur > 1e-9:
+            out.append((cur, a))
+        cur = b
+    if c1 - cur > 1e-9:
+        out.append((cur, c1))
+    return out
 
 
 def measure_lines(circuit: Circuit, t0: float, t1: float) -> list[str]:
@@ -222,8 +419,11 @@ def measure_lines(circuit: Circuit, t0: float, t1: float) -> list[str]:
         f".meas tran vout_dc_v AVG v({out}) {win}",
         f".meas tran ripple_pp_v PP v({out}) {win}",
     ]
-    if circuit.load_sense:
-        lines.append(f".meas tran iout_dc_a AVG i({circuit.load_sense.lower()}) {win}")
+    if len(circuit.loads) == 1:
+        lines.append(f".meas tran iout_dc_a AVG i({circuit.loads[0].sense.lower()}) {win}")
+    else:
+        for ld in circuit.loads:
+            lines.append(f".meas tran iout_dc_a_{ld.name.lower()} AVG i({ld.sense.lower()}) {win}")
     for wd in circuit.windings:
         lines.append(f".meas tran source_rms_a_{wd.name.lower()} RMS i({wd.name.lower()}) {win}")
     for d in circuit.diodes:
@@ -257,12 +457,12 @@ def switch_on_deck(result: RunResult) -> str:
 
     d = result.design
     run = result.start
-    circuit = build_circuit(d, phase_deg=d.simulation.switch_on_phase)
+    circuit = build_circuit(d, phase_deg=d.simulation.switch_on_phase, mode="start")
     header = [f"switch-on run of {d.title}",
               f"all capacitors empty, source starting at {d.simulation.switch_on_phase:g} degrees"]
     meas = [f".meas tran surge_peak_a_{x.name.lower()} MAX i({x.sense.lower()})" for x in circuit.diodes]
     meas += [f".meas tran cap_peak_v_{c.name.lower()} MAX v({c.plus},{c.minus})" if c.minus != "0"
              else f".meas tran cap_peak_v_{c.name.lower()} MAX v({c.plus})"
              for c in circuit.capacitors if c.role != "snubber"]
-    tran = transient(d, circuit, run.tstop, safe=run.retried)
+    tran = transient(d, circuit, run.deck_span or run.tstop, safe=run.retried)
     return render(circuit, tran, run.ics, meas, header)

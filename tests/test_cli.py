@@ -43,7 +43,7 @@ def test_set_overrides_a_value(tmp_path: Path, capsys: pytest.CaptureFixture[str
     code, out, _ = call(["run", str(p), "--json", "--set", "load.r=2.5k", "--set", "filter.0.c=220u"], capsys)
     assert code == 0
     doc = json.loads(out)
-    assert doc["inputs"]["load"]["r"] == 2500.0
+    assert doc["inputs"]["loads"][0]["r"] == 2500.0
     assert doc["inputs"]["filters"][0]["value"] == pytest.approx(220e-6)
     # Half the load resistance: about twice the current.
     assert 0.09 < doc["metrics"]["iout_dc_a"] < 0.12

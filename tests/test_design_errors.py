@@ -197,7 +197,7 @@ MISTAKES: list[Mistake] = [
     # -- wrong types ----------------------------------------------------------------------------
     m("value-for-table", edit(B, '[source]\nkind = "sine"\nvrms = "250"\nfrequency = "50"\nresistance = "25"\n',
                               'source = "250"\n'), "source", "expected a table [source], got text"),
-    m("list-for-table", edit(B, "[load]", "[[load]]"), "load", "expected a table [load], got a list"),
+    m("list-for-table", edit(B, "[bleeder]", "[[bleeder]]"), "bleeder", "expected a table [bleeder], got a list"),
     m("table-for-value", edit(B, 'vrms = "250"', "vrms = { v = 250 }"), "source.vrms",
       "got a table, expected a voltage"),
     m("list-for-value", edit(B, 'vrms = "250"', "vrms = [250]"), "source.vrms", "got a list, expected a voltage"),

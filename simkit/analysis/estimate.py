@@ -11,9 +11,10 @@ from __future__ import annotations
 
 import math
 
-from simkit.design.model import Design
+from simkit.design.model import Design, KeyState, Load
 from simkit.netlist.circuit import Circuit
 from simkit.parts.diodes import forward_drop
+from simkit.parts.tubes import drop_at
 
 
 def conduction_half_angle(rs_over_nrl: float) -> float:
@@ -33,41 +34,62 @@ def conduction_half_angle(rs_over_nrl: float) -> float:
     return 0.5 * (lo + hi)
 
 
-def _dc_chain(design: Design) -> tuple[float, float, float | None]:
-    """Series resistance of the filter chain, and the load as (R_parallel, I_const)."""
-    rser = 0.0
-    for sec in design.filters:
-        if sec.kind == "r":
-            rser += sec.value
-        elif sec.kind == "l":
-            rser += sec.dcr
-    g = 0.0
-    i_const = None
-    if design.load is not None:
-        if design.load.kind == "resistor" and design.load.r:
-            g += 1.0 / design.load.r
-        elif design.load.i:
-            i_const = design.load.i
-    if design.bleeder is not None:
-        g += 1.0 / design.bleeder.r
-    return rser, g, i_const
+def _series_resistance(design: Design) -> float:
+    """Series resistance of the filter chain (resistors and choke DCR), ohm."""
+    return sum(sec.value if sec.kind == "r" else sec.dcr for sec in design.filters if sec.kind != "c")
 
 
-def _current(vr: float, rser: float, g: float, i_const: float | None) -> float:
-    """DC current drawn from the rectifier output at voltage vr, A."""
-    if i_const is None:
-        return vr * g / (1.0 + rser * g) if g > 0 else 0.0
-    # I = Ic + g*(vr - I*rser)
-    return (i_const + g * vr) / (1.0 + rser * g)
+def load_current(load: Load, v: float, mode: str = "steady") -> float:
+    """DC current a load draws at voltage v in its final steady state, A."""
+    if load.kind == "resistor":
+        return v / (load.r or math.inf)
+    if load.kind == "current":
+        return load.i or 0.0
+    if load.kind == "tube":
+        return load.perveance * max(v, 0.0) ** 1.5
+    if load.kind == "steps":
+        return load.steps[-1][1]
+    assert load.down is not None and load.up is not None
+
+    def st(k: KeyState) -> float:
+        return v / k.r if k.r is not None else (k.i or 0.0)
+
+    if mode == "mean":
+        from simkit.netlist.build import key_duty
+
+        d = key_duty(load)
+        return d * st(load.down) + (1 - d) * st(load.up)
+    return st(load.down)
+
+
+def _current(vr: float, design: Design, rser: float, mode: str) -> float:
+    """DC current drawn from the rectifier output at voltage vr, A (every load taken at the output)."""
+
+    def total(v: float) -> float:
+        i = sum(load_current(ld, v, mode) for ld in design.loads)
+        if design.bleeder is not None:
+            i += v / design.bleeder.r
+        return i
+
+    # The output voltage v solves v = vr - rser * total(v); v - vr + rser*total(v) rises with v.
+    lo, hi = 0.0, max(vr, 0.0)
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        if mid - vr + rser * total(mid) < 0:
+            lo = mid
+        else:
+            hi = mid
+    return total(0.5 * (lo + hi))
 
 
 def estimate_state(design: Design, circuit: Circuit, vscale: float = 1.0) -> dict[str, float]:
     """Initial conditions (V on capacitors, A in inductors) near the periodic steady state."""
     s = design.source
     r = design.rectifier
-    vpk = s.vpeak * vscale
+    vpk = (s.inverter.peak if s.inverter is not None else s.vpeak) * vscale
     f = s.frequency
-    rser, g, i_const = _dc_chain(design)
+    rser = _series_resistance(design)
+    mode = circuit.mode
     topo = r.topology
     first = design.filters[0].kind if design.filters else None
     choke_input = first == "l" and topo in ("half-wave", "centre-tap", "bridge")
@@ -78,7 +100,12 @@ def estimate_state(design: Design, circuit: Circuit, vscale: float = 1.0) -> dic
         reservoir = design.filters[0].value
 
     def vr_of(i: float) -> float:
-        drop = n_path * forward_drop(r.diode, max(i, 1e-4) * 4.0) if i > 0 else 0.0
+        if i <= 0:
+            drop = 0.0
+        elif r.diode.vacuum is not None:
+            drop = n_path * drop_at(r.diode.vacuum.perveance, 4.0 * i)
+        else:
+            drop = n_path * forward_drop(r.diode, max(i, 1e-4) * 4.0)
         if topo in ("half-wave", "centre-tap", "bridge"):
             n = 1.0 if topo == "half-wave" else 2.0
             if choke_input:
@@ -101,10 +128,10 @@ def estimate_state(design: Design, circuit: Circuit, vscale: float = 1.0) -> dic
     i = 0.0
     vr = vr_of(0.0)
     for _ in range(60):
-        i_new = _current(vr, rser, g, i_const)
+        i_new = _current(vr, design, rser, mode)
         i = 0.5 * i + 0.5 * i_new
         vr = vr_of(i)
-    i = _current(vr, rser, g, i_const)
+    i = _current(vr, design, rser, mode)
 
     ics: dict[str, float] = {}
     # DC node voltages along the filter ladder: each series element drops I*R.
@@ -118,6 +145,8 @@ def estimate_state(design: Design, circuit: Circuit, vscale: float = 1.0) -> dic
     for cap in circuit.capacitors:
         if cap.role == "snubber":
             ics[cap.name] = 0.0
+        elif cap.role == "aux":  # the inverter's smoothed output power
+            ics[cap.name] = vr * i
         elif cap.role != "stage":
             ics[cap.name] = node_v.get(cap.plus, vr)
     stage_caps = [c for c in circuit.capacitors if c.role == "stage"]

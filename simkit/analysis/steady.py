@@ -53,6 +53,9 @@ class Run:
     waves: Waveforms
     ics: dict[str, float]
     retried: bool = False
+    offset: float = 0.0  # s since switch-on at which the run starts (time functions continue)
+    deck_span: float | None = None  # span of the exported deck when the run was pieced together
+    refined: Run | None = None  # the highest-surge period simulated again at the fine step
 
 
 @dataclass
@@ -77,18 +80,20 @@ def transient(design: Design, circuit: Circuit, tstop: float, safe: bool = False
 
 
 def run_span(engine: Engine, design: Design, circuit: Circuit, tstop: float, ics: dict[str, float],
-             meas: list[str] | None = None, steps: int | None = None) -> Run:
+             meas: list[str] | None = None, steps: int | None = None, offset: float = 0.0) -> Run:
     """Run one span; on convergence trouble retry once with safer options, then give up.
 
-    ``steps`` overrides the design's steps per period (coarser runs for Jacobians).
+    ``steps`` overrides the design's steps per period (coarser runs for Jacobians and long
+    start-up runs); ``offset`` is the absolute time at which the span starts.
     """
-    deck = render(circuit, transient(design, circuit, tstop, steps=steps), ics, meas)
+    deck = render(circuit, transient(design, circuit, tstop, steps=steps), ics, meas, offset=offset)
     try:
-        return Run(deck, tstop, engine.run(deck, tstop), ics)
+        return Run(deck, tstop, engine.run(deck, tstop), ics, offset=offset)
     except SimulationError as first:
-        safe_deck = render(circuit, transient(design, circuit, tstop, safe=True, steps=steps), ics, meas)
+        safe_deck = render(circuit, transient(design, circuit, tstop, safe=True, steps=steps), ics, meas,
+                           offset=offset)
         try:
-            return Run(safe_deck, tstop, engine.run(safe_deck, tstop), ics, retried=True)
+            return Run(safe_deck, tstop, engine.run(safe_deck, tstop), ics, retried=True, offset=offset)
         except SimulationError as second:
             raise SimulationError(
                 f"ngspice could not complete the simulation of {design.origin} "
@@ -142,11 +147,142 @@ def switch_on_span(design: Design, circuit: Circuit) -> float:
     return min(span, max(5 * T, 3.0))
 
 
-def switch_on(engine: Engine, design: Design, circuit: Circuit) -> Run:
-    """All capacitors empty, source starting at ``switch_on_phase``."""
+def timeline_end(design: Design) -> float:
+    """When the last scheduled change after switch-on is over (warm-ups, load steps), s."""
+    end = 0.0
+    vac = design.rectifier.diode.vacuum
+    if vac is not None:
+        end = max(end, vac.warmup_full)
+    for ld in design.loads:
+        if ld.warmup:
+            end = max(end, ld.warmup * 1.2)
+        if ld.kind == "steps":
+            end = max(end, ld.steps[-1][0])
+    return end
+
+
+#: Steps per period of the long, coarse part of a start-up run.
+COARSE_STEPS = 200
+#: Periods per chunk of the coarse part.
+COARSE_CHUNK = 10
+#: The start-up run stops at the latest after this many periods.
+MAX_START_PERIODS = 6000
+
+
+def switch_on(engine: Engine, design: Design, circuit: Circuit, target: float | None = None) -> Run:
+    """All capacitors empty, source starting at ``switch_on_phase``.
+
+    The first periods (the surge, any choke overshoot) run at the design's fine step.  When
+    the design has a timeline (warm-ups, load steps), or the output has not yet reached 90 %
+    of ``target`` (the steady output voltage), the run goes on in coarse chunks until the
+    timeline is over and the output has settled; the period with the highest diode current
+    is then simulated again at the fine step, so the surge figure keeps its accuracy.
+    """
+    T = circuit.period
     span = switch_on_span(design, circuit)
     zero = {e.name: 0.0 for e in circuit.state_elements()}
-    return run_span(engine, design, circuit, span, zero)
+    first = run_span(engine, design, circuit, span, zero)
+    out = circuit.output
+    events = timeline_end(design)
+    reached = target is None or float(np.max(first.waves.v(out))) >= 0.9 * target
+    if events <= 0 and reached:
+        return first
+    pieces = [first]
+    t = span
+    state = end_state(circuit, first.waves)
+    limit = min(MAX_START_PERIODS * T, max(events * 3, 60.0))
+    chunk = COARSE_CHUNK * T
+    while t < limit:
+        run = run_span(engine, design, circuit, chunk, state, steps=COARSE_STEPS, offset=t)
+        pieces.append(run)
+        t += chunk
+        state = end_state(circuit, run.waves)
+        v = run.waves.v(out)
+        reached = reached or target is None or float(np.max(v)) >= 0.9 * target
+        stats = metrics.period_stats(run.waves.time, v, T, 0.0)
+        calm = len(stats) >= 2 and abs(stats[-1].mean - stats[-2].mean) <= 2e-3 * max(abs(stats[-1].mean), 1e-9)
+        if t >= events + 5 * T and reached and calm:
+            break
+    merged = _merge(pieces)
+    # The surge: refine the coarse period that holds the highest diode current.
+    best_fine = max(float(np.max(first.waves.i(d.sense))) for d in circuit.diodes)
+    best_coarse, where = 0.0, None
+    for run in pieces[1:]:
+        for d in circuit.diodes:
+            i = run.waves.i(d.sense)
+            k = int(np.argmax(i))
+            if i[k] > best_coarse:
+                best_coarse, where = float(i[k]), (run, float(run.waves.time[k]))
+    refined: Run | None = None
+    if where is not None and best_coarse > 0.8 * best_fine:
+        run, tk = where
+        k0 = max(math.floor(tk / T - 1e-9) - 1, 0)
+        ics = state_at(circuit, run.waves, k0 * T)
+        refined = run_span(engine, design, circuit, 2 * T, ics, offset=run.offset + k0 * T)
+    return Run(first.deck, float(merged.time[-1]), merged, zero, retried=any(p.retried for p in pieces),
+               deck_span=span, refined=refined)
+
+
+def _merge(pieces: list[Run]) -> Waveforms:
+    """One waveform set in absolute time from consecutive runs (the joints not repeated)."""
+    times = [pieces[0].waves.time]
+    for p in pieces[1:]:
+        times.append(p.waves.time[1:] + p.offset)
+    names = set(pieces[0].waves.vectors)
+    vectors = {}
+    for n in names:
+        parts = [pieces[0].waves.vectors[n]] + [p.waves.vectors[n][1:] for p in pieces[1:]]
+        vectors[n] = np.concatenate(parts)
+    return Waveforms(time=np.concatenate(times), vectors=vectors)
+
+
+@dataclass
+class KeyedRun:
+    """Steady keying: the last chunk, and the keying cycle the figures are taken over."""
+
+    run: Run
+    cycle: float  # s
+    window: tuple[float, float]  # absolute times of the last complete keying cycle
+    settled: bool
+    simulated: float  # s
+
+
+def keyed_steady(engine: Engine, design: Design, circuit: Circuit, start: dict[str, float],
+                 cycle: float) -> KeyedRun:
+    """Key the load from ``start`` (the duty-weighted steady state) until the keying is periodic.
+
+    Chunks are whole source periods covering at least two keying cycles; the run stops when
+    the output's mean over the last two complete keying cycles agrees to 1e-3 (the keying
+    and the mains are not in step, so the cycles differ at the ripple level).
+    """
+    T = circuit.period
+    n = max(math.ceil(2 * cycle / T - 1e-9), 4)
+    span = n * T
+    offset = 0.0
+    ics = start
+    out = circuit.output
+    last: Run | None = None
+    window = (0.0, cycle)
+    for _ in range(30):
+        run = run_span(engine, design, circuit, span, ics, offset=offset)
+        last = run
+        t = run.waves.time + offset
+        v = run.waves.v(out)
+        k_last = math.floor((offset + span) / cycle + 1e-9)
+        c1 = (k_last - 1) * cycle, k_last * cycle
+        c0 = (k_last - 2) * cycle, (k_last - 1) * cycle
+        window = c1
+        if c0[0] >= offset - 1e-12:
+            m1 = metrics.mean(t, v, *c1)
+            m0 = metrics.mean(t, v, *c0)
+            if abs(m1 - m0) <= 1e-3 * max(abs(m1), 1e-9):
+                return KeyedRun(run, cycle, window, True, offset + span)
+        ics = end_state(circuit, run.waves)
+        offset += span
+        if offset > 120.0:
+            break
+    assert last is not None
+    return KeyedRun(last, cycle, window, False, offset + span)
 
 
 def _settled(hist: list[metrics.PeriodStats], scale: float, tol: float) -> tuple[bool, float]:
@@ -275,7 +411,8 @@ def _state_drift(circuit: Circuit, before: dict[str, float], after: dict[str, fl
     for cap in circuit.capacitors:
         if cap.role == "snubber":
             continue
-        sc = max(abs(after[cap.name]), 1e-3 * vpk)
+        floor = 1e-3 * vpk if cap.role != "aux" else 1e-3
+        sc = max(abs(after[cap.name]), floor)
         worst = max(worst, abs(after[cap.name] - before.get(cap.name, 0.0)) / sc)
     for ind in circuit.inductors:
         if ind.role != "choke":

@@ -22,19 +22,26 @@ else:  # pragma: no cover
 from simkit.design import schema
 from simkit.design.model import (
     TOPOLOGIES,
+    Battery,
     Bleeder,
     Design,
     DiodeModel,
     DiodeRatings,
     FilterSection,
+    Inverter,
+    Keying,
+    KeyState,
     Load,
     Rectifier,
     SimulationOptions,
     Source,
     SpreadOptions,
+    Transformer,
+    TubeRatings,
+    VacuumDiode,
 )
 from simkit.errors import DesignError
-from simkit.parts import diodes
+from simkit.parts import diodes, tubes
 from simkit.units import UnitError, parse_percent, parse_value
 
 MAX_TITLE = 200
@@ -273,6 +280,26 @@ class _Reader:
             raise self.fail(full, f"{_show(v)} is not one of {_list(choices)}{hint}")
         return norm
 
+    def boolean(self, table: Mapping[str, Any], key: str, path: str, default: bool) -> bool:
+        full = f"{path}.{key}" if path else key
+        if key not in table:
+            return default
+        v = table[key]
+        if isinstance(v, str) and v.strip().lower() in ("true", "false"):
+            return v.strip().lower() == "true"
+        if not isinstance(v, bool):
+            raise self.fail(full, f"expected true or false, got {_show(v)}")
+        return v
+
+    def need(self, table: Mapping[str, Any], key: str, path: str, why: str) -> None:
+        if key not in table:
+            raise self.fail(f"{path}.{key}", f"missing key: {why}")
+
+    def refuse(self, table: Mapping[str, Any], keys: Sequence[str], path: str, why: str) -> None:
+        for key in keys:
+            if key in table:
+                raise self.fail(f"{path}.{key}", why)
+
     def text(self, table: Mapping[str, Any], key: str, path: str, default: str) -> str:
         full = f"{path}.{key}" if path else key
         if key not in table:
@@ -311,23 +338,24 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
         raise rd.fail("title", f"is {len(title)} characters long; keep it under {MAX_TITLE}")
     note = rd.text(data, "note", "", "")
 
-    source = _source(rd, data)
     rectifier = _rectifier(rd, data)
+    source = _source(rd, data, rectifier.topology)
+    battery = _battery(rd, data, source)
     filters = _filters(rd, data)
-    load = _load(rd, data)
+    loads = _loads(rd, data, len(filters))
     bleeder = _bleeder(rd, data)
     sim = _simulation(rd, data)
     spread = _spread(rd, data)
 
     # Combinations that cannot be built.
-    if rectifier.topology in ("half-wave", "centre-tap", "bridge") and not filters and load is None \
+    if rectifier.topology in ("half-wave", "centre-tap", "bridge") and not filters and not loads \
             and bleeder is None:
         raise rd.fail(
             "filter",
             f"a {rectifier.topology} rectifier with no filter, no load and no bleeder has "
             "nothing to feed; add a [[filter]] c = ... reservoir or a [load]",
         )
-    if filters and filters[-1].kind in ("l", "r") and load is None and bleeder is None:
+    if filters and filters[-1].kind in ("l", "r") and not any(ld.at is None for ld in loads) and bleeder is None:
         n = len(filters) - 1
         raise rd.fail(
             f"filter.{n}",
@@ -339,8 +367,9 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
         source=source,
         rectifier=rectifier,
         filters=tuple(filters),
-        load=load,
+        loads=loads,
         bleeder=bleeder,
+        battery=battery,
         simulation=sim,
         spread=spread,
         note=note,
@@ -348,23 +377,196 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
     )
 
 
-def _source(rd: _Reader, data: Mapping[str, Any]) -> Source:
+_SINE_KEYS = ("vrms", "resistance", "inductance")
+_TRANSFORMER_KEYS = ("primary_vrms", "secondary_vrms", "rated_current", "regulation", "primary_resistance",
+                     "secondary_resistance", "leakage_inductance", "centre_tap")
+_INVERTER_KEYS = ("waveform", "peak", "output_resistance", "rated_power", "efficiency", "idle_power",
+                  "efficiency_table", "regulated", "response_time", "edge_time")
+
+
+def _source(rd: _Reader, data: Mapping[str, Any], topology: str) -> Source:
     t = rd.table(data, "source", "source", required=True)
     assert t is not None
     rd.check_keys(t, schema.SOURCE, "source")
-    kind = rd.choice(t, "kind", "source", ("sine",), default="sine")
-    vrms = rd.value(t, "vrms", "source", "V", above=0, maximum=200e3)
+    kind = rd.choice(t, "kind", "source", ("sine", "transformer", "inverter"), default="sine")
     freq = rd.value(t, "frequency", "source", "Hz", above=0, maximum=100e3)
-    res = rd.value(t, "resistance", "source", "ohm", minimum=0, maximum=1e9)
-    ind = rd.value(t, "inductance", "source", "H", default=0.0, minimum=0, maximum=1e3)
     tol = rd.percent(t, "mains_tolerance", "source")
-    assert vrms is not None and freq is not None and res is not None and ind is not None
-    return Source(kind="sine", vrms=vrms, frequency=freq, resistance=res, inductance=ind,
-                  mains_tolerance=tol) if kind == "sine" else _unreachable()
+    assert freq is not None
+    if kind == "sine":
+        rd.refuse(t, _TRANSFORMER_KEYS + _INVERTER_KEYS, "source", 'belongs to another source kind; '
+                  'this is kind "sine" (set kind = "transformer" or "inverter")')
+        rd.need(t, "vrms", "source", "the open-circuit RMS voltage of the winding, e.g. \"250\"")
+        rd.need(t, "resistance", "source", "the series resistance of the winding, e.g. \"25\"")
+        vrms = rd.value(t, "vrms", "source", "V", above=0, maximum=200e3)
+        res = rd.value(t, "resistance", "source", "ohm", minimum=0, maximum=1e9)
+        ind = rd.value(t, "inductance", "source", "H", default=0.0, minimum=0, maximum=1e3)
+        assert vrms is not None and res is not None and ind is not None
+        return Source(kind="sine", vrms=vrms, frequency=freq, resistance=res, inductance=ind, mains_tolerance=tol)
+    if kind == "transformer":
+        return _transformer(rd, t, freq, tol, topology)
+    return _inverter(rd, t, freq, tol)
 
 
-def _unreachable() -> Source:  # pragma: no cover - choice() already refused anything else
-    raise AssertionError
+def _transformer(rd: _Reader, t: Mapping[str, Any], freq: float, tol: float | None, topology: str) -> Source:
+    """Open-circuit EMF and series resistance from a nameplate (see docs/reference.md).
+
+    With regulation r (no-load rise over full-load voltage): V_oc = V_fl (1 + r) and the series
+    resistance of the whole secondary R = (V_oc - V_fl) / I_rated, treating the drop at the rated
+    resistive load as resistive.  With measured winding resistances Rp and Rs: the turns ratio n
+    solves V_fl = n V_p - I_rated (Rs + n^2 Rp), R = Rs + n^2 Rp (the primary referred to the
+    secondary), V_oc = n V_p.
+    """
+    path = "source"
+    rd.refuse(t, _SINE_KEYS + _INVERTER_KEYS, path, 'belongs to another source kind; this is kind "transformer"')
+    for key, why in (("primary_vrms", 'the rated primary voltage, e.g. "230"'),
+                     ("secondary_vrms", 'the rated secondary voltage, e.g. "600"'),
+                     ("rated_current", 'the rated secondary current, e.g. "150m"')):
+        rd.need(t, key, path, why)
+    vp = rd.value(t, "primary_vrms", path, "V", above=0, maximum=100e3)
+    vs = rd.value(t, "secondary_vrms", path, "V", above=0, maximum=200e3)
+    ir = rd.value(t, "rated_current", path, "A", above=0, maximum=1e3)
+    leak = rd.value(t, "leakage_inductance", path, "H", default=0.0, minimum=0, maximum=1e3)
+    ct = rd.boolean(t, "centre_tap", path, False)
+    assert vp is not None and vs is not None and ir is not None and leak is not None
+    has_reg = "regulation" in t
+    has_res = "primary_resistance" in t or "secondary_resistance" in t
+    if has_reg == has_res:
+        raise rd.fail(f"{path}.regulation", "give either regulation (e.g. \"8%\") or both primary_resistance "
+                      "and secondary_resistance" + ("" if not has_reg else ", not both"))
+    reg = rp = rs_ = None
+    if has_reg:
+        reg = rd.percent(t, "regulation", path, maximum=1.0)
+        assert reg is not None
+        voc = vs * (1 + reg)
+        rser = (voc - vs) / ir
+        n = voc / vp
+    else:
+        rd.need(t, "primary_resistance", path, "with secondary_resistance, the measured primary resistance")
+        rd.need(t, "secondary_resistance", path, "with primary_resistance, the measured secondary resistance")
+        rp = rd.value(t, "primary_resistance", path, "ohm", minimum=0, maximum=1e6)
+        rs_ = rd.value(t, "secondary_resistance", path, "ohm", minimum=0, maximum=1e6)
+        assert rp is not None and rs_ is not None
+        # rp*ir*n^2 - vp*n + (vs + ir*rs) = 0, the smaller (physical) root.
+        a, b, c = rp * ir, -vp, vs + ir * rs_
+        if a == 0:
+            n = c / vp
+        else:
+            disc = b * b - 4 * a * c
+            if disc < 0:
+                raise rd.fail(f"{path}.primary_resistance", "with these winding resistances the transformer "
+                              f"cannot deliver {vs:g} V at {ir:g} A from {vp:g} V; check the values")
+            n = (-b - math.sqrt(disc)) / (2 * a)
+        voc = n * vp
+        rser = rs_ + n * n * rp
+    if topology == "centre-tap":
+        if not ct:
+            raise rd.fail(f"{path}.centre_tap", "topology centre-tap needs a centre-tapped secondary: set "
+                          "centre_tap = true (secondary_vrms is then the whole winding, e.g. 600 for 300-0-300)")
+        # Each half: half the EMF; half the secondary resistance plus the primary referred to one half.
+        # With only a regulation figure, the copper is taken as split evenly between primary and
+        # secondary (common practice).
+        r_sec = rs_ if rs_ is not None else rser / 2
+        r_pri_ref = rser - r_sec
+        per_half_r = r_sec / 2 + r_pri_ref / 4
+        emf, res, ind = voc / 2, per_half_r, leak / 4
+    else:
+        emf, res, ind = voc, rser, leak
+    tr = Transformer(primary_vrms=vp, secondary_vrms=vs, rated_current=ir, centre_tap=ct, regulation=reg,
+                     primary_resistance=rp, secondary_resistance=rs_, turns_ratio=n, open_circuit_vrms=voc,
+                     series_resistance=rser)
+    return Source(kind="transformer", vrms=emf, frequency=freq, resistance=res, inductance=ind,
+                  mains_tolerance=tol, transformer=tr)
+
+
+def _inverter(rd: _Reader, t: Mapping[str, Any], freq: float, tol: float | None) -> Source:
+    path = "source"
+    rd.refuse(t, ("resistance", *_TRANSFORMER_KEYS), path,
+              'belongs to another source kind; an inverter has output_resistance')
+    rd.need(t, "vrms", path, 'the inverter\'s nominal output RMS voltage, e.g. "230"')
+    rd.need(t, "rated_power", path, 'the inverter\'s rated output power, e.g. "150"')
+    wave = rd.choice(t, "waveform", path, ("sine", "modified-sine", "square"), default="sine")
+    vrms = rd.value(t, "vrms", path, "V", above=0, maximum=100e3)
+    rout = rd.value(t, "output_resistance", path, "ohm", default=0.0, minimum=0, maximum=1e6)
+    ind = rd.value(t, "inductance", path, "H", default=0.0, minimum=0, maximum=1e3)
+    prated = rd.value(t, "rated_power", path, "W", above=0, maximum=1e6)
+    idle = rd.value(t, "idle_power", path, "W", default=0.0, minimum=0, maximum=1e5)
+    assert vrms is not None and rout is not None and ind is not None and prated is not None and idle is not None
+    peak = math.sqrt(2) * vrms
+    duty = 1.0
+    if wave == "square":
+        rd.refuse(t, ("peak",), path, "applies to waveform modified-sine only")
+        peak, duty = vrms, 1.0
+    elif wave == "modified-sine":
+        peak = rd.value(t, "peak", path, "V", default=math.sqrt(2) * vrms, above=0, maximum=200e3) or peak
+        if peak < vrms:
+            raise rd.fail(f"{path}.peak", f"must be at least vrms ({vrms:g} V): a three-level wave of peak "
+                          f"{peak:g} V cannot reach that RMS")
+        duty = (vrms / peak) ** 2  # RMS of a three-level wave = peak * sqrt(on fraction)
+    else:
+        rd.refuse(t, ("peak",), path, "applies to waveform modified-sine only")
+    eff = None
+    table: tuple[tuple[float, float], ...] = ()
+    if "efficiency" in t and "efficiency_table" in t:
+        raise rd.fail(f"{path}.efficiency_table", "give efficiency or efficiency_table, not both")
+    if "efficiency_table" in t:
+        table = _eff_table(rd, t["efficiency_table"], f"{path}.efficiency_table")
+    else:
+        rd.need(t, "efficiency", path, 'the efficiency at rated power, e.g. "85%" (or an efficiency_table)')
+        eff = rd.percent(t, "efficiency", path, maximum=1.0 + 1e-12)
+        assert eff is not None
+        if not 0 < eff <= 1:
+            raise rd.fail(f"{path}.efficiency", f"must be above 0% and at most 100%, got {eff * 100:g}%")
+        if prated / eff - prated < idle:
+            raise rd.fail(f"{path}.idle_power", f"the idle power ({idle:g} W) exceeds the whole loss at rated "
+                          f"power ({prated / eff - prated:.3g} W from the efficiency)")
+    regulated = rd.boolean(t, "regulated", path, False)
+    T = 1.0 / freq
+    resp = rd.value(t, "response_time", path, "s", default=2 * T, above=0, maximum=100)
+    edge = rd.value(t, "edge_time", path, "s", default=T / 500, above=0, maximum=T / 8)
+    assert resp is not None and edge is not None
+    inv = Inverter(waveform=wave, peak=peak, duty=duty, rated_power=prated, efficiency=eff,  # type: ignore[arg-type]
+                   idle_power=idle, efficiency_table=table, regulated=regulated, response_time=resp,
+                   edge_time=edge)
+    return Source(kind="inverter", vrms=vrms, frequency=freq, resistance=rout, inductance=ind,
+                  mains_tolerance=tol, inverter=inv)
+
+
+def _eff_table(rd: _Reader, raw: Any, key: str) -> tuple[tuple[float, float], ...]:
+    if not isinstance(raw, list) or len(raw) < 2:
+        raise rd.fail(key, "expected a list of at least two [fraction of rated power, efficiency] pairs, "
+                      'e.g. [[0.1, "70%"], [1.0, "88%"]]')
+    out = []
+    for k, pair in enumerate(raw):
+        if not isinstance(pair, list) or len(pair) != 2:
+            raise rd.fail(f"{key}.{k}", f"expected [fraction, efficiency], got {_show(pair)}")
+        try:
+            frac = parse_value(pair[0], "")
+            eff = parse_percent(pair[1])
+        except UnitError as exc:
+            raise rd.fail(f"{key}.{k}", str(exc)) from None
+        if not 0 <= frac <= 2 or not 0 < eff <= 1:
+            raise rd.fail(f"{key}.{k}", "fraction must be 0..2 and efficiency above 0% and at most 100%")
+        if out and frac <= out[-1][0]:
+            raise rd.fail(f"{key}.{k}", "fractions must increase")
+        out.append((frac, eff))
+    return tuple(out)
+
+
+def _battery(rd: _Reader, data: Mapping[str, Any], source: Source) -> Battery | None:
+    t = rd.table(data, "battery", "battery", required=False)
+    if t is None:
+        return None
+    if source.kind != "inverter":
+        raise rd.fail("battery", 'a battery feeds an inverter: set [source] kind = "inverter"')
+    rd.check_keys(t, schema.BATTERY, "battery")
+    v = rd.value(t, "voltage", "battery", "V", above=0, maximum=10e3)
+    r = rd.value(t, "internal_resistance", "battery", "ohm", default=0.0, minimum=0, maximum=1e3)
+    cap = rd.value(t, "capacity", "battery", "Ah", above=0, maximum=1e6)
+    use = rd.percent(t, "usable_fraction", "battery", maximum=1.0 + 1e-12)
+    assert v is not None and r is not None and cap is not None
+    if use is not None and use <= 0:
+        raise rd.fail("battery.usable_fraction", "must be above 0%")
+    return Battery(voltage=v, internal_resistance=r, capacity=cap, usable_fraction=1.0 if use is None else use)
 
 
 def _rectifier(rd: _Reader, data: Mapping[str, Any]) -> Rectifier:
@@ -401,14 +603,35 @@ def _diode(rd: _Reader, spec: Any) -> DiodeModel:
     key = "rectifier.diode"
     if isinstance(spec, str):
         part = diodes.lookup(spec)
-        if part is None:
-            near = difflib.get_close_matches(spec.strip().upper(), list(diodes.DIODES), n=1, cutoff=0.5)
-            hint = f"; did you mean {diodes.DIODES[near[0]].name!r}?" if near else ""
-            raise rd.fail(key, f"{_show(spec)} is not in the part library (see `simkit parts`){hint}")
-        return part.model()
+        if part is not None:
+            return part.model()
+        tube = tubes.lookup(spec)
+        if tube is not None:
+            return tube.model()
+        known = list(diodes.DIODES) + list(tubes.TUBES)
+        near = difflib.get_close_matches(spec.strip().upper(), known, n=1, cutoff=0.5)
+        names = {**{k: v.name for k, v in diodes.DIODES.items()}, **{k: v.name for k, v in tubes.TUBES.items()}}
+        hint = f"; did you mean {names[near[0]]!r}?" if near else ""
+        raise rd.fail(key, f"{_show(spec)} is not in the part library (see `simkit parts`){hint}")
     if not isinstance(spec, dict):
         raise rd.fail(key, f'expected a part name such as "1N4007" or an inline table, got {_show(spec)}')
     rd.check_keys(spec, schema.DIODE_INLINE, key)
+    kind = rd.choice(spec, "kind", key, ("silicon", "vacuum"), default="silicon")
+    if kind == "vacuum":
+        rd.refuse(spec, ("is", "n", "rs", "bv", "tt", "cjo", "vrrm", "ifav", "ifsm"), key,
+                  "belongs to a silicon diode; a vacuum plate takes perveance (and warmup, piv, peak_current)")
+        rd.need(spec, "perveance", key, 'the plate perveance in A/V^1.5, e.g. "1m" (i = P v^1.5)')
+        perv = rd.value(spec, "perveance", key, "", above=0, maximum=1.0)
+        warm = rd.value(spec, "warmup", key, "s", default=0.0, minimum=0, maximum=600)
+        assert perv is not None and warm is not None
+        ratings = TubeRatings(piv=rd.value(spec, "piv", key, "V", above=0),
+                              peak_current=rd.value(spec, "peak_current", key, "A", above=0))
+        vac = VacuumDiode(perveance=perv, warmup_start=warm / 2, warmup_full=warm, ratings=ratings)
+        return DiodeModel(name="inline vacuum", is_=0.0, n=1.0, rs=0.0, source="given in the design file",
+                          vacuum=vac)
+    rd.refuse(spec, ("perveance", "warmup", "piv", "peak_current"), key,
+              'belongs to a vacuum plate; set kind = "vacuum"')
+    rd.need(spec, "is", key, 'the saturation current, e.g. "5n"')
     is_ = rd.value(spec, "is", key, "A", above=0, maximum=1.0)
     n = rd.value(spec, "n", key, "", default=1.0, minimum=0.01, maximum=10.0)
     rs = rd.value(spec, "rs", key, "ohm", default=0.0, minimum=0, maximum=1e6)
@@ -459,25 +682,145 @@ def _filters(rd: _Reader, data: Mapping[str, Any]) -> list[FilterSection]:
     return out
 
 
-def _load(rd: _Reader, data: Mapping[str, Any]) -> Load | None:
-    t = rd.table(data, "load", "load", required=False)
-    if t is None:
-        return None
-    rd.check_keys(t, schema.LOAD, "load")
-    kind = rd.choice(t, "kind", "load", ("resistor", "current"))
+def _loads(rd: _Reader, data: Mapping[str, Any], n_filters: int) -> tuple[Load, ...]:
+    if "load" not in data:
+        return ()
+    raw = data["load"]
+    if isinstance(raw, dict):
+        return (_load(rd, raw, "load", n_filters, ""),)
+    if not isinstance(raw, list):
+        raise rd.fail("load", f"expected a [load] table or [[load]] tables, got {_kind(raw)}")
+    if not raw:
+        return ()
+    out = []
+    for k, t in enumerate(raw):
+        if not isinstance(t, dict):
+            raise rd.fail(f"load.{k}", f"expected a [[load]] table, got {_kind(t)}")
+        out.append(_load(rd, t, f"load.{k}", n_filters, str(k + 1) if len(raw) > 1 else ""))
+    return tuple(out)
+
+
+_LOAD_KEYS = {
+    "resistor": ("r",),
+    "current": ("i",),
+    "tube": ("point",),
+    "keyed": ("down", "up", "rate", "duty", "morse", "wpm", "rise", "fall", "pushing_hz_per_v"),
+    "steps": ("steps",),
+}
+
+
+def _load(rd: _Reader, t: Mapping[str, Any], path: str, n_filters: int, suffix: str) -> Load:
+    rd.check_keys(t, schema.LOAD, path)
+    kind = rd.choice(t, "kind", path, tuple(_LOAD_KEYS))
+    for other, keys in _LOAD_KEYS.items():
+        if other != kind:
+            for key in keys:
+                if key in t and key not in _LOAD_KEYS[kind]:
+                    raise rd.fail(f"{path}.{key}", f'belongs to kind "{other}", not "{kind}"')
+    tol = rd.percent(t, "tolerance", path)
+    warm = rd.value(t, "warmup", path, "s", minimum=0, maximum=600)
+    at = None
+    if "at" in t:
+        if n_filters == 0:
+            raise rd.fail(f"{path}.at", "there is no filter section to hang the load after")
+        at = rd.integer(t, "at", path, default=0, minimum=0, maximum=n_filters - 1)
+    common = {"tolerance": tol, "warmup": warm or None, "at": at, "name": f"LOAD{suffix}"}
     if kind == "resistor":
-        if "i" in t:
-            raise rd.fail("load.i", 'belongs to kind "current"; a resistor load takes r')
-        if "r" not in t:
-            raise rd.fail("load.r", 'missing key: kind "resistor" needs r, e.g. r = "5k"')
-        return Load(kind="resistor", r=rd.value(t, "r", "load", "ohm", above=0, maximum=1e12),
-                    tolerance=rd.percent(t, "tolerance", "load"))
-    if "r" in t:
-        raise rd.fail("load.r", 'belongs to kind "resistor"; a current load takes i')
-    if "i" not in t:
-        raise rd.fail("load.i", 'missing key: kind "current" needs i, e.g. i = "100m"')
-    return Load(kind="current", i=rd.value(t, "i", "load", "A", above=0, maximum=1e3),
-                tolerance=rd.percent(t, "tolerance", "load"))
+        rd.need(t, "r", path, 'kind "resistor" needs r, e.g. r = "5k"')
+        return Load(kind="resistor", r=rd.value(t, "r", path, "ohm", above=0, maximum=1e12), **common)
+    if kind == "current":
+        rd.need(t, "i", path, 'kind "current" needs i, e.g. i = "100m"')
+        return Load(kind="current", i=rd.value(t, "i", path, "A", above=0, maximum=1e3), **common)
+    if kind == "tube":
+        rd.need(t, "point", path, 'kind "tube" needs its operating point, e.g. point = { v = "250", i = "60m" }')
+        pt = t["point"]
+        if not isinstance(pt, dict):
+            raise rd.fail(f"{path}.point", f'expected a table {{ v = "250", i = "60m" }}, got {_show(pt)}')
+        allowed = {"v": schema.Key("V", "plate voltage at the operating point", required=True),
+                   "i": schema.Key("A", "current at the operating point", required=True)}
+        rd.check_keys(pt, allowed, f"{path}.point")
+        v = rd.value(pt, "v", f"{path}.point", "V", above=0, maximum=100e3)
+        i = rd.value(pt, "i", f"{path}.point", "A", above=0, maximum=1e3)
+        return Load(kind="tube", tube_v=v, tube_i=i, **common)
+    if kind == "steps":
+        rd.need(t, "steps", path, 'kind "steps" needs steps = [[time, current], ...], e.g. [[0, "10m"], ["30", "90m"]]')
+        return Load(kind="steps", steps=_steps(rd, t["steps"], f"{path}.steps"), **common)
+    # keyed
+    for key in ("down", "up"):
+        rd.need(t, key, path, f'kind "keyed" needs {key} = {{ i = "..." }} or {{ r = "..." }}')
+    down = _key_state(rd, t["down"], f"{path}.down")
+    up = _key_state(rd, t["up"], f"{path}.up")
+    rise = rd.value(t, "rise", path, "s", default=5e-3, minimum=0, maximum=10)
+    fall = rd.value(t, "fall", path, "s", default=5e-3, minimum=0, maximum=10)
+    assert rise is not None and fall is not None
+    if "morse" in t:
+        if "rate" in t or "duty" in t:
+            raise rd.fail(f"{path}.rate" if "rate" in t else f"{path}.duty",
+                          "give rate and duty, or morse and wpm, not both")
+        text = rd.text(t, "morse", path, "")
+        from simkit.netlist.drives import morse_problem
+
+        problem = morse_problem(text)
+        if problem:
+            raise rd.fail(f"{path}.morse", problem)
+        rd.need(t, "wpm", path, "the Morse speed in words per minute, e.g. wpm = 20")
+        wpm = rd.value(t, "wpm", path, "", above=0, maximum=100)
+        assert wpm is not None
+        unit = 1.2 / wpm
+        if rise > unit / 2 or fall > unit / 2:
+            raise rd.fail(f"{path}.rise", f"rise and fall must stay under half a dot ({unit / 2:.3g} s at {wpm:g} wpm)")
+        keying = Keying(morse=text, wpm=wpm, rise=rise, fall=fall)
+    else:
+        rd.need(t, "rate", path, "the keying rate in Hz (with duty), or morse text and wpm")
+        rate = rd.value(t, "rate", path, "Hz", above=0, maximum=1e3)
+        duty = rd.percent(t, "duty", path, maximum=1.0)
+        duty = 0.5 if duty is None else duty
+        assert rate is not None
+        if not 0 < duty < 1:
+            raise rd.fail(f"{path}.duty", f"must be between 0% and 100% (exclusive), got {duty * 100:g}%")
+        if rise + fall > min(duty, 1 - duty) / rate:
+            raise rd.fail(f"{path}.rise", "rise and fall are longer than the key-down or key-up time")
+        keying = Keying(rate=rate, duty=duty, rise=rise, fall=fall)
+    push = rd.value(t, "pushing_hz_per_v", path, "", minimum=-1e9, maximum=1e9)
+    return Load(kind="keyed", down=down, up=up, keying=keying, pushing=push, **common)
+
+
+def _key_state(rd: _Reader, raw: Any, path: str) -> KeyState:
+    if not isinstance(raw, dict):
+        raise rd.fail(path, f'expected {{ i = "80m" }} or {{ r = "3k" }}, got {_show(raw)}')
+    allowed = {"i": schema.Key("A", "current"), "r": schema.Key("ohm", "resistance")}
+    rd.check_keys(raw, allowed, path)
+    if len(raw) != 1:
+        raise rd.fail(path, 'expected exactly one of i or r, e.g. { i = "80m" }')
+    if "i" in raw:
+        return KeyState(i=rd.value(raw, "i", path, "A", minimum=0, maximum=1e3))
+    return KeyState(r=rd.value(raw, "r", path, "ohm", above=0, maximum=1e12))
+
+
+def _steps(rd: _Reader, raw: Any, path: str) -> tuple[tuple[float, float], ...]:
+    if not isinstance(raw, list) or not raw:
+        raise rd.fail(path, 'expected a list of [time, current] pairs, e.g. [[0, "10m"], ["30", "90m"]]')
+    out: list[tuple[float, float]] = []
+    for k, pair in enumerate(raw):
+        if isinstance(pair, dict):
+            allowed = {"t": schema.Key("s", "time"), "i": schema.Key("A", "current")}
+            rd.check_keys(pair, allowed, f"{path}.{k}")
+            if set(pair) != {"t", "i"}:
+                raise rd.fail(f"{path}.{k}", "expected { t = ..., i = ... }")
+            pair = [pair["t"], pair["i"]]
+        if not isinstance(pair, list) or len(pair) != 2:
+            raise rd.fail(f"{path}.{k}", f'expected [time, current], e.g. ["30", "90m"], got {_show(pair)}')
+        try:
+            tk = parse_value(pair[0], "s")
+            ik = parse_value(pair[1], "A")
+        except UnitError as exc:
+            raise rd.fail(f"{path}.{k}", str(exc)) from None
+        if tk < 0 or tk > 3600 or ik < 0 or ik > 1e3:
+            raise rd.fail(f"{path}.{k}", "time must be 0..3600 s and current 0..1000 A")
+        if out and tk <= out[-1][0]:
+            raise rd.fail(f"{path}.{k}", "times must increase")
+        out.append((tk, ik))
+    return tuple(out)
 
 
 def _bleeder(rd: _Reader, data: Mapping[str, Any]) -> Bleeder | None:

@@ -6,6 +6,7 @@ with :func:`dataclasses.replace` or by re-loading an overridden dictionary.
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass, field
 from typing import Literal
@@ -13,7 +14,9 @@ from typing import Literal
 Topology = Literal["half-wave", "centre-tap", "bridge", "doubler", "cascade"]
 TOPOLOGIES: tuple[str, ...] = ("half-wave", "centre-tap", "bridge", "doubler", "cascade")
 FilterKind = Literal["c", "l", "r"]
-LoadKind = Literal["resistor", "current"]
+LoadKind = Literal["resistor", "current", "tube", "keyed", "steps"]
+SourceKind = Literal["sine", "transformer", "inverter"]
+Waveform = Literal["sine", "modified-sine", "square"]
 
 
 @dataclass(frozen=True)
@@ -34,26 +37,132 @@ class DiodeModel:
     """A rectifier diode: SPICE junction parameters plus ratings and where they come from."""
 
     name: str  # library part name, or "inline"
-    is_: float  # A, saturation current
-    n: float  # emission coefficient
-    rs: float  # ohm, series resistance
+    is_: float  # A, saturation current (silicon)
+    n: float  # emission coefficient (silicon)
+    rs: float  # ohm, series resistance (silicon)
     bv: float | None = None  # V, reverse breakdown (None: no breakdown modelled)
     tt: float = 0.0  # s, transit time (0: no stored charge, see ENGINE-NOTES trap 1)
     cjo: float = 0.0  # F, zero-bias junction capacitance (0: no ringing)
     ratings: DiodeRatings = field(default_factory=DiodeRatings)
     source: str = ""  # where the ratings come from
+    vacuum: VacuumDiode | None = None  # set for a tube rectifier: then is_/n/rs are unused
+
+    @property
+    def is_vacuum(self) -> bool:
+        return self.vacuum is not None
+
+
+@dataclass(frozen=True)
+class TubeRatings:
+    """Datasheet limits of a vacuum rectifier, per plate unless said otherwise."""
+
+    piv: float | None = None  # V, peak inverse plate voltage
+    peak_current: float | None = None  # A, peak plate current per plate
+    dc_current: float | None = None  # A, maximum DC output current (capacitor input)
+    max_input_capacitance: float | None = None  # F
+    min_plate_resistance: float | None = None  # ohm, minimum supply impedance per plate
+
+
+@dataclass(frozen=True)
+class VacuumDiode:
+    """One plate of a vacuum rectifier: Child-Langmuir law i = P v^1.5 (v >= 0), no reverse current."""
+
+    perveance: float  # A/V^1.5 per plate
+    warmup_start: float = 0.0  # s after switch-on when the cathode starts to emit
+    warmup_full: float = 0.0  # s after switch-on when emission is complete
+    directly_heated: bool = False
+    ratings: TubeRatings = field(default_factory=TubeRatings)
+
+
+@dataclass(frozen=True)
+class Transformer:
+    """Nameplate of a mains transformer, and what simkit derived from it."""
+
+    primary_vrms: float  # V
+    secondary_vrms: float  # V, whole secondary at rated current
+    rated_current: float  # A (RMS)
+    centre_tap: bool
+    regulation: float | None  # fraction, no-load rise over full-load voltage
+    primary_resistance: float | None  # ohm
+    secondary_resistance: float | None  # ohm
+    turns_ratio: float  # secondary/primary, from the open-circuit voltage
+    open_circuit_vrms: float  # V, whole secondary
+    series_resistance: float  # ohm, whole secondary with the primary referred to it
+
+    @property
+    def rated_va(self) -> float:
+        return self.secondary_vrms * self.rated_current
+
+
+@dataclass(frozen=True)
+class Inverter:
+    """A battery-fed inverter: waveform, output resistance and losses."""
+
+    waveform: Waveform
+    peak: float  # V, the waveform's peak (open circuit, nominal battery)
+    duty: float  # fraction of each half period at +-peak (modified-sine; 1 for square)
+    rated_power: float  # W
+    efficiency: float | None  # at rated power
+    idle_power: float  # W
+    efficiency_table: tuple[tuple[float, float], ...]  # (fraction of rated power, efficiency)
+    regulated: bool
+    response_time: float  # s, time constant of its input (DC bus) smoothing
+    edge_time: float  # s, rise/fall of the square and modified-sine edges
+
+    def input_power(self, p_out: float) -> float:
+        """Battery power for an output power, W (the loss model of the design file)."""
+        p = max(p_out, 0.0)
+        if self.efficiency_table:
+            frac = p / self.rated_power
+            pts = self.efficiency_table
+            if frac <= pts[0][0]:
+                eff = pts[0][1]
+            elif frac >= pts[-1][0]:
+                eff = pts[-1][1]
+            else:
+                eff = pts[-1][1]
+                for (x0, y0), (x1, y1) in itertools.pairwise(pts):
+                    if x0 <= frac <= x1:
+                        eff = y0 + (y1 - y0) * (frac - x0) / (x1 - x0)
+                        break
+            return max(self.idle_power, p / eff)
+        k = self.loss_k
+        return self.idle_power + p + k * p * p
+
+    @property
+    def loss_k(self) -> float:
+        """Coefficient of the loss that grows with the square of the output, 1/W."""
+        if self.efficiency is None:
+            return 0.0
+        pr = self.rated_power
+        return (pr / self.efficiency - pr - self.idle_power) / (pr * pr)
+
+
+@dataclass(frozen=True)
+class Battery:
+    voltage: float  # V, open-circuit
+    internal_resistance: float  # ohm
+    capacity: float  # Ah
+    usable_fraction: float = 1.0
 
 
 @dataclass(frozen=True)
 class Source:
-    """The winding that feeds the rectifier: an EMF with series resistance and inductance."""
+    """The winding that feeds the rectifier: an EMF with series resistance and inductance.
 
-    kind: Literal["sine"]
+    For every kind, ``vrms``, ``resistance`` and ``inductance`` are the equivalent per winding
+    (each half for centre-tap) that the netlist uses; ``transformer`` and ``inverter`` keep
+    what the design file said.
+    """
+
+    kind: SourceKind
     vrms: float  # V, open-circuit RMS (each half for centre-tap)
     frequency: float  # Hz
     resistance: float  # ohm, series (each half for centre-tap)
     inductance: float = 0.0  # H, series leakage (each half for centre-tap)
     mains_tolerance: float | None = None  # fraction, +- supply range
+    transformer: Transformer | None = None
+    inverter: Inverter | None = None
 
     @property
     def vpeak(self) -> float:
@@ -87,11 +196,47 @@ class FilterSection:
 
 
 @dataclass(frozen=True)
+class KeyState:
+    """What a keyed load draws in one key state: a current or a resistance."""
+
+    i: float | None = None  # A
+    r: float | None = None  # ohm
+
+
+@dataclass(frozen=True)
+class Keying:
+    """When a keyed load is down: a fixed rate and duty, or Morse text at a speed."""
+
+    rate: float | None = None  # Hz
+    duty: float | None = None  # fraction of each cycle key-down
+    morse: str | None = None  # text sent, repeated
+    wpm: float | None = None  # words per minute (PARIS standard)
+    rise: float = 5e-3  # s
+    fall: float = 5e-3  # s
+
+
+@dataclass(frozen=True)
 class Load:
     kind: LoadKind
     r: float | None = None  # ohm, resistor
     i: float | None = None  # A, current
     tolerance: float | None = None  # fraction, for spread
+    tube_v: float | None = None  # V, tube load operating point
+    tube_i: float | None = None  # A
+    down: KeyState | None = None
+    up: KeyState | None = None
+    keying: Keying | None = None
+    steps: tuple[tuple[float, float], ...] = ()  # (time s, current A) from switch-on
+    warmup: float | None = None  # s: draws nothing until then (heaters warming)
+    at: int | None = None  # filter section the load hangs after; None: the output
+    pushing: float | None = None  # Hz/V of an oscillator fed from this node
+    name: str = "LOAD"
+
+    @property
+    def perveance(self) -> float:
+        """Child-Langmuir perveance of a tube load, A/V^1.5, from its operating point."""
+        assert self.tube_v and self.tube_i
+        return self.tube_i / self.tube_v**1.5
 
 
 @dataclass(frozen=True)
@@ -123,8 +268,9 @@ class Design:
     source: Source
     rectifier: Rectifier
     filters: tuple[FilterSection, ...] = ()
-    load: Load | None = None
+    loads: tuple[Load, ...] = ()
     bleeder: Bleeder | None = None
+    battery: Battery | None = None
     simulation: SimulationOptions = field(default_factory=SimulationOptions)
     spread: SpreadOptions = field(default_factory=SpreadOptions)
     note: str = ""
@@ -133,3 +279,14 @@ class Design:
     @property
     def output_is_series_element(self) -> bool:
         return bool(self.filters) and self.filters[-1].kind in ("l", "r")
+
+    @property
+    def keyed(self) -> tuple[Load, ...]:
+        return tuple(ld for ld in self.loads if ld.kind == "keyed")
+
+    @property
+    def has_timeline(self) -> bool:
+        """Anything that changes after switch-on: warm-ups or load steps."""
+        d = self.rectifier.diode
+        return any(ld.warmup or ld.kind == "steps" for ld in self.loads) or bool(
+            d.vacuum and d.vacuum.warmup_full > 0)

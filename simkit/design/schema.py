@@ -26,24 +26,59 @@ TOP: dict[str, Key] = {
     "source": Key("table", "the winding or inverter output that feeds the rectifier", required=True),
     "rectifier": Key("table", "the rectifier arrangement and its diodes", required=True),
     "filter": Key("array", "filter sections from the rectifier towards the load, in order"),
-    "load": Key("table", "the load across the output (omit for an idle supply)"),
+    "load": Key("table", "the load across the output (omit for an idle supply); [[load]] for several"),
     "bleeder": Key("table", "a bleeder resistor across the output"),
+    "battery": Key("table", "the battery behind an inverter source"),
     "simulation": Key("table", "how the analyses run"),
     "spread": Key("table", "how `simkit spread` draws values within their tolerances"),
 }
 
 SOURCE: dict[str, Key] = {
-    "kind": Key("str", '"sine": an ideal sine EMF behind series R and L', default='"sine"'),
-    "vrms": Key("V", "open-circuit RMS voltage (each half for centre-tap)", required=True),
+    "kind": Key("str", '"sine" (an EMF behind series R and L), "transformer" (from its nameplate) or '
+                '"inverter" (battery-fed)', default='"sine"'),
+    "vrms": Key("V", "sine and inverter: open-circuit RMS voltage (each half for centre-tap)"),
     "frequency": Key("Hz", "mains or inverter frequency", required=True),
     "resistance": Key(
         "ohm",
-        "series resistance of the winding plus the primary referred to the secondary "
+        "sine: series resistance of the winding plus the primary referred to the secondary "
         "(each half for centre-tap)",
-        required=True,
     ),
-    "inductance": Key("H", "series leakage inductance (each half for centre-tap)", default="0"),
-    "mains_tolerance": Key("%", "supply range, +- this fraction, for corner checks", default="none"),
+    "inductance": Key("H", "sine and inverter: series leakage inductance (each half for centre-tap)", default="0"),
+    "mains_tolerance": Key("%", "supply range, +- this fraction, for corner checks and `run --mains`",
+                           default="none"),
+    "primary_vrms": Key("V", "transformer: rated primary (mains) voltage"),
+    "secondary_vrms": Key("V", "transformer: rated secondary voltage at rated current, whole winding "
+                          "(a 300-0-300 V winding is 600 with centre_tap = true)"),
+    "rated_current": Key("A", "transformer: rated secondary RMS current"),
+    "regulation": Key("%", "transformer: rise of the secondary voltage from full load to no load"),
+    "primary_resistance": Key("ohm", "transformer: measured primary winding resistance (with "
+                              "secondary_resistance, instead of regulation)"),
+    "secondary_resistance": Key("ohm", "transformer: measured resistance of the whole secondary"),
+    "leakage_inductance": Key("H", "transformer: leakage inductance referred to the whole secondary", default="0"),
+    "centre_tap": Key("bool", "transformer: the secondary has a centre tap (needed for topology centre-tap)",
+                      default="false"),
+    "waveform": Key("str", 'inverter: "sine", "modified-sine" or "square"', default='"sine"'),
+    "peak": Key("V", "inverter, modified-sine: the step height; the zero interval is set so that the RMS "
+                "equals vrms", default="sqrt(2) x vrms"),
+    "output_resistance": Key("ohm", "inverter: output resistance", default="0"),
+    "rated_power": Key("W", "inverter: rated output power"),
+    "efficiency": Key("%", "inverter: efficiency at rated power (with idle_power)"),
+    "idle_power": Key("W", "inverter: battery power drawn with no load", default="0"),
+    "efficiency_table": Key("list", "inverter: [[fraction of rated power, efficiency], ...] instead of "
+                            "efficiency"),
+    "regulated": Key("bool", "inverter: holds its output against battery sag", default="false"),
+    "response_time": Key("s", "inverter: time constant of its input smoothing (how fast battery current "
+                         "follows the load)", default="2 periods"),
+    "edge_time": Key("s", "inverter: rise and fall time of square and modified-sine edges",
+                     default="period / 500"),
+}
+
+BATTERY: dict[str, Key] = {
+    "voltage": Key("V", "open-circuit battery voltage", required=True),
+    "internal_resistance": Key("ohm", "internal resistance plus wiring", default="0"),
+    "capacity": Key("Ah", "rated capacity", required=True),
+    "usable_fraction": Key("%", "share of the capacity you will use (e.g. 50% for lead-acid life)",
+                           default="100%"),
 }
 
 RECTIFIER: dict[str, Key] = {
@@ -62,7 +97,14 @@ RECTIFIER: dict[str, Key] = {
 }
 
 DIODE_INLINE: dict[str, Key] = {
-    "is": Key("A", "saturation current", required=True),
+    "kind": Key("str", '"silicon" (junction parameters below) or "vacuum" (a Child-Langmuir plate)',
+                default='"silicon"'),
+    "perveance": Key("", "vacuum: perveance per plate, A/V^1.5 (i = P v^1.5)"),
+    "warmup": Key("s", "vacuum: time to full emission after switch-on (emission starts at half of it)",
+                  default="0"),
+    "piv": Key("V", "vacuum: rated peak inverse voltage, for checks", default="none"),
+    "peak_current": Key("A", "vacuum: rated peak plate current, for checks", default="none"),
+    "is": Key("A", "silicon: saturation current"),
     "n": Key("", "emission coefficient (down to 0.01 for a near-ideal diode)", default="1"),
     "rs": Key("ohm", "series resistance", default="0"),
     "bv": Key("V", "reverse breakdown voltage", default="none (no breakdown modelled)"),
@@ -83,13 +125,31 @@ FILTER: dict[str, Key] = {
 }
 
 LOAD: dict[str, Key] = {
-    "kind": Key("str", '"resistor" (needs r) or "current" (needs i)', required=True),
+    "kind": Key("str", '"resistor" (r), "current" (i), "tube" (point), "keyed" (down, up and rate/duty '
+                'or morse/wpm) or "steps" (steps)', required=True),
     "r": Key("ohm", "load resistance (kind resistor)"),
     "i": Key(
         "A",
         "load current (kind current); it fades out below 5 V so an empty supply is not "
         "driven negative",
     ),
+    "point": Key("table", 'kind tube: one operating point { v = "250", i = "60m" }; the load follows '
+                 "i = P v^1.5 through it"),
+    "down": Key("table", 'kind keyed: key-down load, { i = "80m" } or { r = "3k" }'),
+    "up": Key("table", 'kind keyed: key-up load, { i = "5m" } or { r = "50k" }'),
+    "rate": Key("Hz", "kind keyed: keying rate (with duty)"),
+    "duty": Key("%", "kind keyed: key-down share of each keying cycle", default="50%"),
+    "morse": Key("str", "kind keyed: text sent in Morse code, repeated (instead of rate)"),
+    "wpm": Key("", "kind keyed: Morse speed, words per minute (PARIS: a dot lasts 1.2/wpm s)"),
+    "rise": Key("s", "kind keyed: time the load takes to rise at key-down", default="5m"),
+    "fall": Key("s", "kind keyed: time the load takes to fall at key-up", default="5m"),
+    "steps": Key("list", 'kind steps: [[time, current], ...] from switch-on, e.g. [[0, "10m"], ["30", "90m"]]'),
+    "warmup": Key("s", "the load draws nothing until this time after switch-on (heaters warming), then "
+                  "rises to full over a fifth of it", default="0"),
+    "at": Key("int", "hang the load after filter section N (counted from 0) instead of at the output",
+              default="the output"),
+    "pushing_hz_per_v": Key("", "kind keyed: frequency pushing of an oscillator fed from this node, Hz/V "
+                            "(gives chirp_hz)"),
     "tolerance": Key("%", "tolerance of r or i, for `simkit spread`", default="none"),
 }
 
@@ -125,6 +185,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
     "rectifier.diode": DIODE_INLINE,
     "filter": FILTER,
     "load": LOAD,
+    "battery": BATTERY,
     "bleeder": BLEEDER,
     "simulation": SIMULATION,
     "spread": SPREAD,

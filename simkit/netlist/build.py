@@ -7,19 +7,33 @@ says otherwise.
 
 Node names: ``w1p`` EMF terminal, ``ac1``/``ac2`` winding terminals at the diodes,
 ``rect`` rectifier output, ``f1``, ``f2``... filter nodes, ``out`` the output.
+
+Modes (which time functions are live; see :mod:`simkit.netlist.drives`):
+
+- ``steady``: everything in its final state: heaters warm, loads at their last step,
+  keyed loads held key-down (the heaviest steady load);
+- ``start``: the timeline from switch-on: rectifier heater warm-up, load warm-ups and load
+  steps follow their time functions, keyed loads key-down (a station switched on to send);
+- ``keyed``: keyed loads follow their keying; everything else final;
+- ``mean``: keyed loads draw their duty-weighted average; everything else final (the
+  starting point of the keyed run).
 """
 
 from __future__ import annotations
 
+import itertools
 import math
+from dataclasses import replace
 
-from simkit.design.model import Design, DiodeModel
+from simkit.design.model import Design, DiodeModel, KeyState, Load
+from simkit.netlist import drives
 from simkit.netlist.circuit import (
     CapRef,
     Circuit,
     DiodeRef,
     Element,
     IndRef,
+    LoadRef,
     ResRef,
     WindingRef,
 )
@@ -34,6 +48,30 @@ CURRENT_KNEE = 5.0
 DIODE_MODEL = "DRECT"
 
 
+MODES = ("steady", "start", "keyed", "mean")
+#: A load's warm-up: it draws nothing until ``warmup``, then rises to full over this share of it.
+WARMUP_RISE = 0.2
+
+
+def keying_drive(load: Load) -> drives.Drive:
+    k = load.keying
+    assert k is not None
+    if k.morse:
+        assert k.wpm is not None
+        return drives.morse_keying(k.morse, k.wpm, k.rise, k.fall)
+    assert k.rate is not None and k.duty is not None
+    return drives.rate_keying(k.rate, k.duty, k.rise, k.fall)
+
+
+def key_duty(load: Load) -> float:
+    """Share of time key-down (rise and fall counted half), for the mean load."""
+    d = keying_drive(load)
+    assert d.period
+    pts = d.breakpoints(0.0, d.period)
+    area = sum((t1 - t0) * (y0 + y1) / 2 for (t0, y0), (t1, y1) in itertools.pairwise(pts))
+    return area / d.period
+
+
 def diode_model_line(d: DiodeModel) -> str:
     params = [f"is={spice(d.is_)}", f"n={spice(d.n)}", f"rs={spice(d.rs)}", f"tt={spice(d.tt)}",
               f"cjo={spice(d.cjo)}"]
@@ -43,11 +81,14 @@ def diode_model_line(d: DiodeModel) -> str:
 
 
 class _Builder:
-    def __init__(self, design: Design, phase_deg: float, vscale: float = 1.0) -> None:
+    def __init__(self, design: Design, phase_deg: float, vscale: float = 1.0, mode: str = "steady") -> None:
+        if mode not in MODES:
+            raise ValueError(mode)
         self.d = design
         self.phase = phase_deg
         self.vscale = vscale
-        self.c = Circuit(title=design.title, period=design.source.period)
+        self.mode = mode
+        self.c = Circuit(title=design.title, period=design.source.period, mode=mode)
         self.n_diode = 0
         self.n_cap = 0
         self.n_ind = 0
@@ -61,8 +102,11 @@ class _Builder:
         vpk = s.vpeak * self.vscale
         name = f"V{index}"
         emf = f"w{index}p"
-        self.c.add(Element(name, (emf, minus), f"SIN(0 {spice(vpk)} {spice(s.frequency)} 0 0 {spice(phase)})",
-                           comment=f"winding {index} EMF, {spice(s.vrms * self.vscale)} Vrms"))
+        if s.inverter is not None:
+            self.inverter_emf(index, emf, minus, phase)
+        else:
+            self.c.add(Element(name, (emf, minus), f"SIN(0 {spice(vpk)} {spice(s.frequency)} 0 0 {spice(phase)})",
+                               comment=f"winding {index} EMF, {spice(s.vrms * self.vscale)} Vrms"))
         node = emf
         if s.resistance > 0:
             nxt = plus if s.inductance == 0 else f"w{index}r"
@@ -74,12 +118,102 @@ class _Builder:
                                ic=0.0))
             self.c.inductors.append(IndRef(f"LW{index}", node, plus, s.inductance, 0.0, "leakage"))
             node = plus
-        if node != plus:  # neither R nor L: the EMF drives the terminal directly
-            self.c.elements[-1] = Element(name, (plus, minus), self.c.elements[-1].value,
-                                          comment=self.c.elements[-1].comment)
+        if node != plus:  # neither R nor L: a 0 ohm link keeps the node names stable
+            self.c.add(Element(f"RW{index}", (node, plus), spice(1e-6), comment="winding link (no resistance given)"))
         self.c.windings.append(WindingRef(name, s.vrms * self.vscale, plus, minus))
         if s.inductance > 0:
             self.snubber(plus, minus, s.inductance, f"SW{index}")
+
+    def inverter_emf(self, index: int, emf: str, minus: str, phase: float) -> None:
+        """An inverter's output: a unit waveform times its peak, scaled by battery sag if unregulated.
+
+        ``V{index}`` is a 0 V sense source between the EMF and the winding terminal, so the
+        winding's current is named as for a sine source.
+        """
+        s = self.d.source
+        inv = s.inverter
+        assert inv is not None
+        if "wave" not in {n for e in self.c.elements for n in e.nodes}:
+            self.unit_wave(phase)
+        sign = "" if index == 1 else "-"
+        scale = "*v(scale)" if "vt" in self.c.battery_nodes and not inv.regulated else ""
+        amp = spice(inv.peak * self.vscale)
+        self.c.add(Element(f"BEMF{index}", (f"w{index}q", minus), f"V={sign}{amp}*v(wave){scale}",
+                           comment=f"inverter output {index}: {inv.waveform}, {spice(s.vrms * self.vscale)} Vrms"))
+        self.c.add(Element(f"V{index}", (emf, f"w{index}q"), "0", comment=f"senses winding {index} current"))
+
+    def unit_wave(self, phase: float) -> None:
+        """Node ``wave``: the inverter's waveform with unit peak."""
+        s = self.d.source
+        inv = s.inverter
+        assert inv is not None
+        T = s.period
+        f = s.frequency
+        if inv.waveform == "sine":
+            self.c.add(Element("VWAVE", ("wave", "0"), f"SIN(0 1 {spice(f)} 0 0 {spice(phase)})",
+                               comment="unit sine"))
+            return
+        e = inv.edge_time
+        on = inv.duty * T / 2  # time at +-peak in each half period, edges included half
+        delay = (T / 4 - on / 2) - phase / 360.0 * T  # centred on the sine's crest
+        delay = delay % T
+        pos = f"PULSE(0 1 {spice(delay, 9)} {spice(e, 9)} {spice(e, 9)} {spice(max(on - e, e), 9)} {spice(T, 9)})"
+        neg = f"PULSE(0 -1 {spice((delay + T / 2) % T, 9)} {spice(e, 9)} {spice(e, 9)} {spice(max(on - e, e), 9)} " \
+              f"{spice(T, 9)})"
+        kind = "square" if inv.waveform == "square" else "three-level (modified sine)"
+        self.c.add(Element("VWAVEP", ("wavep", "0"), pos, comment=f"{kind}: positive step"))
+        self.c.add(Element("VWAVEN", ("wave", "wavep"), neg, comment=f"{kind}: negative step"))
+
+    def battery(self) -> None:
+        """Battery and inverter losses: battery current and terminal voltage follow the load.
+
+        The inverter's output power, smoothed with its response time (node ``pout``, a 1 ohm
+        1 F-per-second RC), sets its input power by the loss model (node ``pin``); the battery
+        terminal voltage solves V = Vb - Rb * P/V (node ``vt``) and the battery current is
+        P/V (node ``ib``).  An unregulated inverter scales its output by V/Vb (node ``scale``).
+        """
+        b = self.d.battery
+        inv = self.d.source.inverter
+        if b is None or inv is None:
+            return
+        # Output power at the inverter's terminals (after its output resistance).
+        p_terms = "+".join(f"v({w.plus},{w.minus})*(-i({w.name.lower()}))" for w in self.c.windings)
+        self.c.add(Element("BPOUT", ("0", "pout"), f"I=max({p_terms},0)", comment="inverter output power"))
+        self.c.add(Element("RPOUT", ("pout", "0"), "1", comment="smooths it over the response time"))
+        self.c.add(Element("CPOUT", ("pout", "0"), spice(inv.response_time), comment="response time", ic=0.0))
+        self.c.capacitors.append(CapRef("CPOUT", "pout", "0", "pout", "0", "", inv.response_time, "aux"))
+        if inv.efficiency_table:
+            pts = inv.efficiency_table
+            pr = inv.rated_power
+            x = "v(pout)"
+            expr = spice(pts[-1][1], 9)
+            for (x0, y0), (x1, y1) in reversed(list(itertools.pairwise(pts))):
+                seg = f"({spice(y0, 9)}+({spice(y1 - y0, 9)})*({x}/{spice(pr, 9)}-{spice(x0, 9)})/{spice(x1 - x0, 9)})"
+                expr = f"({x}<{spice(x1 * pr, 9)}) ? {seg} : {expr}"
+            expr = f"({x}<{spice(pts[0][0] * pr, 9)}) ? {spice(pts[0][1], 9)} : {expr}"
+            pin = f"max({spice(inv.idle_power)},{x}/({expr}))"
+        else:
+            pin = f"{spice(inv.idle_power)}+v(pout)+{spice(inv.loss_k, 9)}*v(pout)*v(pout)"
+        self.c.add(Element("BPIN", ("pin", "0"), f"V={pin}", comment="inverter input power (loss model)"))
+        vb, rb = spice(b.voltage), spice(b.internal_resistance)
+        if b.internal_resistance > 0:
+            vt = f"V=({vb}+sqrt(max({vb}*{vb}-4*{rb}*v(pin),0)))/2"
+        else:
+            vt = f"V={vb}"
+        self.c.add(Element("BVT", ("vt", "0"), vt, comment="battery terminal voltage"))
+        self.c.add(Element("BIB", ("ib", "0"), f"V=v(pin)/max(v(vt),{spice(0.05 * b.voltage)})",
+                           comment="battery current (as volts)"))
+        for n in ("pin", "vt", "ib"):
+            self.c.add(Element(f"RB{n.upper()}", (n, "0"), "1Meg", comment="keeps the node defined"))
+        self.c.battery_nodes.update({"pout": "pout", "pin": "pin", "vt": "vt", "ib": "ib"})
+        if not inv.regulated:
+            self.c.add(Element("BSCALE", ("scale", "0"), f"V=v(vt)/{vb}", comment="output follows battery sag"))
+            self.c.add(Element("RBSCALE", ("scale", "0"), "1Meg", comment="keeps the node defined"))
+            self.c.battery_nodes["scale"] = "scale"
+
+    def drive(self, name: str, node: str, drive: drives.Drive, comment: str) -> str:
+        self.c.add(Element(name, (node, "0"), "", comment=comment, drive=drive))
+        return f"v({node})"
 
     def snubber(self, a: str, b: str, inductance: float, tag: str) -> None:
         r = min(max(math.sqrt(inductance / SNUB_C), 100.0), 100e3)
@@ -99,7 +233,20 @@ class _Builder:
         k = self.n_diode
         inner = f"d{k}a"
         self.c.add(Element(f"VD{k}", (anode, inner), "0", comment=f"senses D{k} current"))
-        self.c.add(Element(f"D{k}", (inner, cathode), DIODE_MODEL, comment="anode cathode ->|-"))
+        vac = self.d.rectifier.diode.vacuum
+        if vac is None:
+            self.c.add(Element(f"D{k}", (inner, cathode), DIODE_MODEL, comment="anode cathode ->|-"))
+        else:
+            # A vacuum plate: Child-Langmuir current, none in reverse (ENGINE-NOTES trap 5: max(v,0),
+            # never a smoothed exponential).  Emission follows the heater in the start-up run.
+            heat = ""
+            if self.mode == "start" and vac.warmup_full > 0:
+                if "heat" not in {n for e in self.c.elements for n in e.nodes}:
+                    self.drive("VHEAT", "heat", drives.ramp(vac.warmup_start, vac.warmup_full),
+                               comment="rectifier cathode emission, 0 cold .. 1 warm")
+                heat = "*v(heat)"
+            expr = f"I={spice(vac.perveance, 9)}*pow(max(v({inner},{cathode}),0),1.5){heat}"
+            self.c.add(Element(f"BD{k}", (inner, cathode), expr, comment="plate cathode, i = P v^1.5"))
         self.c.diodes.append(DiodeRef(f"D{k}", f"VD{k}", anode, cathode))
 
     def capacitor(self, plus: str, minus: str, value: float, esr: float, role: str) -> str:
@@ -202,29 +349,80 @@ class _Builder:
                 else:
                     self.resistor(node, nxt, sec.value)
                 node = nxt
+            self.c.section_nodes.append(node)
             first = False
         return node
 
-    def load(self, out: str) -> None:
-        ld = self.d.load
-        if ld is not None:
-            self.c.add(Element("VLOAD", (out, "lo"), "0", comment="senses the load current"))
-            self.c.load_sense = "VLOAD"
-            self.c.load_kind = ld.kind
-            if ld.kind == "resistor":
-                assert ld.r is not None
-                self.c.add(Element("RLOAD", ("lo", "0"), spice(ld.r), comment="load"))
-                self.c.resistors.append(ResRef("RLOAD", "lo", "0", ld.r, "load"))
-            else:
-                assert ld.i is not None
-                expr = f"I={spice(ld.i)}*tanh(max(v(lo),0)/{spice(CURRENT_KNEE)})"
-                self.c.add(Element("BLOAD", ("lo", "0"), expr, comment="constant-current load"))
+    def loads(self) -> None:
+        for idx, ld in enumerate(self.d.loads):
+            node = "out" if ld.at is None else self.c.section_nodes[ld.at]
+            self.load(idx, ld, node)
         if self.d.bleeder is not None:
-            self.c.add(Element("RBLEED", (out, "0"), spice(self.d.bleeder.r), comment="bleeder"))
-            self.c.resistors.append(ResRef("RBLEED", out, "0", self.d.bleeder.r, "bleeder"))
+            self.c.add(Element("RBLEED", ("out", "0"), spice(self.d.bleeder.r), comment="bleeder"))
+            self.c.resistors.append(ResRef("RBLEED", "out", "0", self.d.bleeder.r, "bleeder"))
+
+    def load(self, idx: int, ld: Load, node: str) -> None:
+        sfx = ld.name[4:]  # "" or the load's number
+        sense = f"VLOAD{sfx}"
+        lo = f"lo{sfx}"
+        self.c.add(Element(sense, (node, lo), "0", comment="senses the load current"))
+        warm = ""
+        if self.mode == "start" and ld.warmup:
+            warm = "*" + self.drive(f"VWARM{sfx}", f"warm{sfx}", drives.ramp(ld.warmup, ld.warmup * (1 + WARMUP_RISE)),
+                                    comment="load heaters: draws nothing until warm")
+        v = f"v({lo})"
+        knee = spice(CURRENT_KNEE)
+
+        def state(st: KeyState) -> str:
+            if st.r is not None:
+                return f"{v}/{spice(st.r)}"
+            return f"{spice(st.i or 0.0)}*tanh(max({v},0)/{knee})"
+
+        if ld.kind == "resistor" and not warm:
+            assert ld.r is not None
+            self.c.add(Element(f"RLOAD{sfx}", (lo, "0"), spice(ld.r), comment="load"))
+            self.c.resistors.append(ResRef(f"RLOAD{sfx}", lo, "0", ld.r, "load"))
+            self.c.loads.append(LoadRef(f"RLOAD{sfx}", sense, node, idx))
+            return
+        if ld.kind == "resistor":
+            expr = f"{v}/{spice(ld.r or 1.0)}"
+            what = "resistive load"
+        elif ld.kind == "current":
+            expr = state(KeyState(i=ld.i))
+            what = "constant-current load"
+        elif ld.kind == "tube":
+            expr = f"{spice(ld.perveance, 9)}*pow(max({v},0),1.5)"
+            what = f"tube load, i = P v^1.5 through {spice(ld.tube_v or 0)} V {spice(ld.tube_i or 0)} A"
+        elif ld.kind == "steps":
+            if self.mode == "start":
+                step = self.drive(f"VSTEP{sfx}", f"step{sfx}", drives.steps_drive(ld.steps, STEP_EDGE),
+                                  comment="load current steps (A as V)")
+                expr = f"{step}*tanh(max({v},0)/{knee})"
+            else:
+                expr = state(KeyState(i=ld.steps[-1][1]))
+            what = "stepped load"
+        else:
+            assert ld.down is not None and ld.up is not None
+            if self.mode == "keyed":
+                key = self.drive(f"VKEY{sfx}", f"key{sfx}", keying_drive(ld), comment="key: 0 up .. 1 down")
+                expr = f"({state(ld.down)})*{key}+({state(ld.up)})*(1-{key})"
+                what = "keyed load"
+            elif self.mode == "mean":
+                dty = spice(key_duty(ld), 9)
+                expr = f"({state(ld.down)})*{dty}+({state(ld.up)})*(1-{dty})"
+                what = "keyed load, duty-weighted mean"
+            else:
+                expr = state(ld.down)
+                what = "keyed load held key-down"
+        self.c.add(Element(f"BLOAD{sfx}", (lo, "0"), f"I=({expr}){warm}", comment=what))
+        self.c.loads.append(LoadRef(f"BLOAD{sfx}", sense, node, idx))
 
 
-def build_circuit(design: Design, phase_deg: float = 0.0, vscale: float = 1.0) -> Circuit:
+#: Edge time of a load step, s.
+STEP_EDGE = 1e-3
+
+
+def build_circuit(design: Design, phase_deg: float = 0.0, vscale: float = 1.0, mode: str = "steady") -> Circuit:
     """Build the circuit of a design.
 
     Parameters
@@ -234,14 +432,20 @@ def build_circuit(design: Design, phase_deg: float = 0.0, vscale: float = 1.0) -
         Source phase at t = 0, degrees.
     vscale : float
         Multiplies the source EMF (mains corners), e.g. 1.1 for +10 %.
+    mode : str
+        Which time functions are live (module docstring).
     """
-    b = _Builder(design, phase_deg, vscale)
+    b = _Builder(design, phase_deg, vscale, mode)
+    if design.battery is not None and design.source.inverter is not None and not design.source.inverter.regulated:
+        b.c.battery_nodes["vt"] = "vt"  # tells the inverter EMF to follow the battery (built below)
     b.rectifier()
     last = b.filters()
     circuit = b.c
     _rename(circuit, last, "out")
-    b.load("out")
-    circuit.models.append(diode_model_line(design.rectifier.diode))
+    b.loads()
+    b.battery()
+    if not design.rectifier.diode.is_vacuum:
+        circuit.models.append(diode_model_line(design.rectifier.diode))
     circuit.output = "out"
     circuit.rectified = "out" if last == "rect" else "rect"
     return circuit
@@ -255,9 +459,7 @@ def _rename(c: Circuit, old: str, new: str) -> None:
     def m(x: str) -> str:
         return new if x == old else x
 
-    c.elements = [
-        Element(e.name, tuple(m(n) for n in e.nodes), e.value, e.comment, e.ic) for e in c.elements
-    ]
+    c.elements = [replace(e, nodes=tuple(m(n) for n in e.nodes)) for e in c.elements]
     c.diodes = [DiodeRef(d.name, d.sense, m(d.anode), m(d.cathode)) for d in c.diodes]
     c.capacitors = [
         CapRef(x.name, m(x.plus), m(x.minus), m(x.inner_plus), m(x.inner_minus), x.sense, x.value, x.role)
@@ -266,3 +468,4 @@ def _rename(c: Circuit, old: str, new: str) -> None:
     c.inductors = [IndRef(x.name, m(x.a), m(x.b), x.value, x.dcr, x.role) for x in c.inductors]
     c.resistors = [ResRef(x.name, m(x.a), m(x.b), x.value, x.role) for x in c.resistors]
     c.windings = [WindingRef(w.name, w.vrms, m(w.plus), m(w.minus)) for w in c.windings]
+    c.section_nodes = [m(n) for n in c.section_nodes]

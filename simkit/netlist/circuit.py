@@ -10,6 +10,7 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass, field
 
+from simkit.netlist.drives import Drive
 from simkit.units import spice
 
 
@@ -22,9 +23,10 @@ class Element:
     value: str
     comment: str = ""
     ic: float | None = None  # initial condition: V for a capacitor, A for an inductor
+    drive: Drive | None = None  # a PWL source: its value is rendered per run window
 
-    def render(self, ic: float | None = None) -> str:
-        value = self.value
+    def render(self, ic: float | None = None, offset: float = 0.0, span: float = 0.0) -> str:
+        value = self.drive.pwl(offset, span) if self.drive is not None else self.value
         use = self.ic if ic is None else ic
         if use is not None:
             value += f" IC={spice(use)}"
@@ -49,7 +51,7 @@ class CapRef:
     inner_minus: str
     sense: str  # VC1: current into the plus terminal
     value: float  # F
-    role: str  # "reservoir", "stage", "filter", "snubber"
+    role: str  # "reservoir", "stage", "filter", "snubber", "aux" (a model's internal state)
 
 
 @dataclass(frozen=True)
@@ -69,6 +71,14 @@ class ResRef:
     b: str
     value: float  # ohm
     role: str  # "filter", "load", "bleeder", "winding", "esr", "dcr", "snubber"
+
+
+@dataclass(frozen=True)
+class LoadRef:
+    name: str  # RLOAD, BLOAD, RLOAD2 ...
+    sense: str  # VLOAD...: current into the load
+    node: str  # where it hangs
+    index: int  # position in the design's loads
 
 
 @dataclass(frozen=True)
@@ -94,9 +104,23 @@ class Circuit:
     windings: list[WindingRef] = field(default_factory=list)
     output: str = "out"
     rectified: str = "rect"  # rectifier output node (reservoir or choke input)
-    load_sense: str | None = None  # VLOAD
-    load_kind: str | None = None  # "resistor" | "current"
+    loads: list[LoadRef] = field(default_factory=list)
     period: float = 0.02  # s
+    mode: str = "steady"  # which time functions are live: see netlist.build
+    battery_nodes: dict[str, str] = field(default_factory=dict)  # "vt", "ib", "pin", "pout" when modelled
+    section_nodes: list[str] = field(default_factory=list)  # node after each filter section
+
+    @property
+    def load_sense(self) -> str | None:
+        """Sense source of the first load (designs with one load); see ``loads`` for all."""
+        return self.loads[0].sense if self.loads else None
+
+    @property
+    def load_kind(self) -> str | None:
+        """"resistor" when the first load is a plain resistor element, else "current" (a B source)."""
+        if not self.loads:
+            return None
+        return "resistor" if self.loads[0].name.startswith("RLOAD") else "current"
 
     def add(self, element: Element) -> None:
         if any(e.name == element.name for e in self.elements):
@@ -143,6 +167,7 @@ def render(
     ics: dict[str, float] | None = None,
     meas: list[str] | None = None,
     header: list[str] | None = None,
+    offset: float = 0.0,
 ) -> str:
     """Render the whole deck deterministically.
 
@@ -153,6 +178,9 @@ def render(
         state elements start at their own ``ic`` (zero by default).
     meas : list of str, optional
         ``.meas`` lines to append.
+    offset : float
+        Absolute time since switch-on at which this run starts, s: time functions (keying,
+        warm-up, steps) continue from there.  Runs start on whole source periods.
     """
     ics = ics or {}
     lines = [f"* simkit deck: {safe_comment(circuit.title)}"]
@@ -166,7 +194,7 @@ def render(
             ic = ic if ic is not None else (e.ic if e.ic is not None else 0.0)
             lines.append(e.render(ic))
         else:
-            lines.append(e.render())
+            lines.append(e.render(offset=offset, span=tran.tstop))
     lines.extend(circuit.models)
     opts = [f"reltol={spice(tran.reltol)}", f"abstol={spice(tran.abstol)}", f"vntol={spice(tran.vntol)}",
             f"method={tran.method}", *tran.extra_options]

@@ -18,11 +18,15 @@ part, fuse the supply (slow-blow, because of the switch-on surge) and earth the
 chassis.  Follow your local electrical codes, and have mains wiring done or checked by
 a licensed person where the law requires it."""
 
-_UNIT_OF_SUFFIX = {"_v": "V", "_a": "A", "_s": "s", "_w": "W", "_va": "VA", "_f": "F", "_h": "H",
-                   "_ohm": "Ω", "_a2s": "A²s"}
+_UNIT_OF_SUFFIX = {"_v": "V", "_a": "A", "_s": "s", "_w": "W", "_va": "VA", "_f": "F", "_ohm": "Ω",
+                   "_a2s": "A²s", "_hz": "Hz", "_pct": "%"}
+#: Figures whose unit takes no SI prefix when shown.
+_PLAIN = {"_h": "h", "_pct": "%", "efficiency": "", "_a2s": "A²s"}
 
 
 def unit_of(key: str) -> str:
+    if key == "value_h":
+        return "H"
     for suffix in sorted(_UNIT_OF_SUFFIX, key=len, reverse=True):
         if key.endswith(suffix):
             return _UNIT_OF_SUFFIX[suffix]
@@ -31,10 +35,11 @@ def unit_of(key: str) -> str:
 
 def show(key: str, value: Any) -> str:
     if isinstance(value, float):
-        unit = unit_of(key)
-        if unit == "A²s":  # a prefix would read as (mA)²s: print plainly
-            return f"{value:.4g} A²s"
-        return eng(value, unit)
+        if key != "value_h":
+            for suffix, unit in _PLAIN.items():  # a prefix would mislead ((mA)²s, mh): print plainly
+                if key.endswith(suffix):
+                    return f"{value:.4g} {unit}".strip() if value == value else "n/a"
+        return eng(value, unit_of(key))
     return str(value)
 
 
