@@ -63,6 +63,7 @@ FIGURES: dict[str, tuple[str, str]] = {
     "recovery_time_s": ("s", "after the longest key-down edge, until the output stays within 1 % of vout_keydown_v"),
     "overshoot_v": ("V", "highest output after key-up above vout_keyup_v"),
     "ripple_keydown_pp_v": ("V", "output ripple over the last period of the longest key-down interval"),
+    "droop_v": ("V", "fall of the output's one-period mean from the start to the end of the longest key-down"),
     "keying_cycle_s": ("s", "length of one keying cycle (one repetition of the Morse text)"),
     "chirp_hz": ("Hz", "pushing_hz_per_v x the output's peak-to-peak change during a dot"),
     "battery_keydown_current_a": ("A", "mean battery current while key-down, in steady keying"),
@@ -235,6 +236,7 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
             "role": {"filter": "filter resistor", "bleeder": "bleeder", "winding": "winding resistance"}[r.role],
             "value_ohm": r.value,
             "dissipation_w": mx.mean(t, v * v, t0, t1) / r.value,
+            "dc_a": mx.mean(t, v, t0, t1) / r.value,
             "rms_a": mx.rms(t, v, t0, t1) / r.value,
             "peak_v": mx.peak(t, np.abs(v), t0, t1),
         }
@@ -274,6 +276,8 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
         _battery_figures(design, circuit, w, (t0, t1), m)
     if keyed is not None:
         _keyed_figures(design, keyed, m, warnings)
+    elif any(ld.kind == "steps" for ld in design.loads):
+        _step_figures(design, sc, start, m, warnings)
 
     if steady.final.retried:
         warnings.append("ngspice needed safer options (method=gear) to converge; figures may be less precise")
@@ -377,6 +381,8 @@ def _keyed_figures(design: Design, keyed: KeyedRun, m: dict[str, float], warning
     m["overshoot_v"] = max(mx.peak(t, v, ua, ub) - vu, 0.0)
     span = min(T, b - a)
     m["ripple_keydown_pp_v"] = mx.peak_to_peak(t, v, b - span, b)
+    if b - a >= 2 * T:
+        m["droop_v"] = mx.mean(t, v, a, a + T) - mx.mean(t, v, b - T, b)
     m["keying_cycle_s"] = keyed.cycle
     if ld.pushing is not None:
         # The shortest key-down element is the dot; the oscillator follows its node.
@@ -395,6 +401,49 @@ def _keyed_figures(design: Design, keyed: KeyedRun, m: dict[str, float], warning
         b_ = design.battery
         assert b_ is not None
         m["runtime_keyed_h"] = b_.capacity * b_.usable_fraction / mean_i if mean_i > 0 else math.inf
+
+
+def _step_figures(design: Design, sc: Circuit, start: Run, m: dict[str, float], warnings: list[str]) -> None:
+    """Sag, recovery and overshoot around the steps of a stepped load, from the start-up run.
+
+    Each step level is taken as settled over the last whole period before the next step (or
+    the end of the run); "down" is the heaviest level, "up" the lightest.
+    """
+    ld = next(x for x in design.loads if x.kind == "steps")
+    T = sc.period
+    w = start.waves
+    t = w.time
+    v = w.v(sc.output)
+    end = float(t[-1])
+    segments = [(0.0, 0.0)] if ld.steps[0][0] > 0 else []  # (start, current): nothing before the first step
+    segments += [(max(tk, 0.0), ik) for tk, ik in ld.steps]
+    levels: list[tuple[float, float, float, float]] = []  # (current, settled mean, start, stop)
+    for k, (a, ik) in enumerate(segments):
+        b = segments[k + 1][0] if k + 1 < len(segments) else end
+        if b - a >= 2 * T:
+            levels.append((ik, mx.mean(t, v, b - T, b), a, b))
+    if len(levels) < 2:
+        warnings.append("the load steps are too close together (under two periods) for step figures")
+        return
+    down = max(levels, key=lambda x: x[0])
+    up = min(levels, key=lambda x: x[0])
+    m["vout_keydown_v"] = down[1]
+    m["vout_keyup_v"] = up[1]
+    m["sag_v"] = up[1] - down[1]
+    m["sag_pct"] = 100 * (up[1] - down[1]) / up[1] if up[1] else math.nan
+    rises = [(levels[k][0] - levels[k - 1][0], k) for k in range(1, len(levels))]
+    inc, k = max(rises)
+    if inc > 0:
+        target, a, b = levels[k][1], levels[k][2], levels[k][3]
+        sel = (t >= a) & (t <= b)
+        ts = t[sel]
+        outside = np.nonzero(np.abs(v[sel] - target) > 0.01 * abs(target))[0]
+        m["recovery_time_s"] = 0.0 if len(outside) == 0 else float(ts[min(outside[-1] + 1, len(ts) - 1)] - a)
+    dec, k = min(rises)
+    if dec < 0:
+        a, b = levels[k][2], levels[k][3]
+        m["overshoot_v"] = max(mx.peak(t, v, a, b) - levels[k][1], 0.0)
+    m["ripple_keydown_pp_v"] = mx.peak_to_peak(t, v, down[3] - T, down[3])
 
 
 def _key_up(c0: float, c1: float, drive: Any) -> list[tuple[float, float]]:

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import itertools
 import math
+import re
 from dataclasses import replace
 
 from simkit.design.model import Design, DiodeModel, KeyState, Load
@@ -459,7 +460,11 @@ def _rename(c: Circuit, old: str, new: str) -> None:
     def m(x: str) -> str:
         return new if x == old else x
 
-    c.elements = [replace(e, nodes=tuple(m(n) for n in e.nodes)) for e in c.elements]
+    def in_expr(text: str) -> str:  # node names inside v(a) and v(a,b) of behavioural sources
+        return re.sub(r"v\(([^()]*)\)", lambda g: "v(" + ",".join(m(x.strip()) for x in g.group(1).split(",")) + ")",
+                      text)
+
+    c.elements = [replace(e, nodes=tuple(m(n) for n in e.nodes), value=in_expr(e.value)) for e in c.elements]
     c.diodes = [DiodeRef(d.name, d.sense, m(d.anode), m(d.cathode)) for d in c.diodes]
     c.capacitors = [
         CapRef(x.name, m(x.plus), m(x.minus), m(x.inner_plus), m(x.inner_minus), x.sense, x.value, x.role)

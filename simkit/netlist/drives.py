@@ -146,7 +146,11 @@ class Drive:
 
 
 def keying_drive(elements: list[tuple[float, float]], cycle: float, rise: float, fall: float) -> Drive:
-    """0 (key up) .. 1 (key down), with linear rise and fall, repeating every ``cycle`` seconds."""
+    """0 (key up) .. 1 (key down), with linear rise and fall, repeating every ``cycle`` seconds.
+
+    Edges take at least a microsecond so that the PWL times keep rising.
+    """
+    rise, fall = max(rise, 1e-6), max(fall, 1e-6)
     pts: list[tuple[float, float]] = [(0.0, 0.0)]
     for start, length in elements:
         pts += [(start, 0.0), (start + rise, 1.0), (start + length, 1.0), (start + length + fall, 0.0)]
