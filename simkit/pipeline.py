@@ -233,7 +233,8 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
             continue
         v = w.v(r.a) - w.v(r.b)
         parts[r.name] = {
-            "role": {"filter": "filter resistor", "bleeder": "bleeder", "winding": "winding resistance"}[r.role],
+            "role": {"filter": "filter resistor", "bleeder": "bleeder", "winding": "winding resistance",
+                     "balancing": "balancing resistor"}[r.role],
             "value_ohm": r.value,
             "dissipation_w": mx.mean(t, v * v, t0, t1) / r.value,
             "dc_a": mx.mean(t, v, t0, t1) / r.value,

@@ -24,6 +24,7 @@ from simkit.design.model import (
     TOPOLOGIES,
     Battery,
     Bleeder,
+    CheckPolicy,
     Design,
     DiodeModel,
     DiodeRatings,
@@ -32,6 +33,7 @@ from simkit.design.model import (
     Keying,
     KeyState,
     Load,
+    PartRating,
     Rectifier,
     SimulationOptions,
     Source,
@@ -346,6 +348,7 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
     bleeder = _bleeder(rd, data)
     sim = _simulation(rd, data)
     spread = _spread(rd, data)
+    checks = _checks(rd, data)
 
     # Combinations that cannot be built.
     if rectifier.topology in ("half-wave", "centre-tap", "bridge") and not filters and not loads \
@@ -372,13 +375,14 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
         battery=battery,
         simulation=sim,
         spread=spread,
+        checks=checks,
         note=note,
         origin=origin,
     )
 
 
 _SINE_KEYS = ("vrms", "resistance", "inductance")
-_TRANSFORMER_KEYS = ("primary_vrms", "secondary_vrms", "rated_current", "regulation", "primary_resistance",
+_TRANSFORMER_KEYS = ("primary_vrms", "secondary_vrms", "regulation", "primary_resistance",
                      "secondary_resistance", "leakage_inductance", "centre_tap")
 _INVERTER_KEYS = ("waveform", "peak", "output_resistance", "rated_power", "efficiency", "idle_power",
                   "efficiency_table", "regulated", "response_time", "edge_time")
@@ -401,7 +405,9 @@ def _source(rd: _Reader, data: Mapping[str, Any], topology: str) -> Source:
         res = rd.value(t, "resistance", "source", "ohm", minimum=0, maximum=1e9)
         ind = rd.value(t, "inductance", "source", "H", default=0.0, minimum=0, maximum=1e3)
         assert vrms is not None and res is not None and ind is not None
-        return Source(kind="sine", vrms=vrms, frequency=freq, resistance=res, inductance=ind, mains_tolerance=tol)
+        rated = rd.value(t, "rated_current", "source", "A", above=0, maximum=1e3)
+        return Source(kind="sine", vrms=vrms, frequency=freq, resistance=res, inductance=ind, mains_tolerance=tol,
+                      rated_current=rated)
     if kind == "transformer":
         return _transformer(rd, t, freq, tol, topology)
     return _inverter(rd, t, freq, tol)
@@ -475,7 +481,7 @@ def _transformer(rd: _Reader, t: Mapping[str, Any], freq: float, tol: float | No
                      primary_resistance=rp, secondary_resistance=rs_, turns_ratio=n, open_circuit_vrms=voc,
                      series_resistance=rser)
     return Source(kind="transformer", vrms=emf, frequency=freq, resistance=res, inductance=ind,
-                  mains_tolerance=tol, transformer=tr)
+                  mains_tolerance=tol, transformer=tr, rated_current=ir)
 
 
 def _inverter(rd: _Reader, t: Mapping[str, Any], freq: float, tol: float | None) -> Source:
@@ -593,10 +599,41 @@ def _rectifier(rd: _Reader, data: Mapping[str, Any]) -> Rectifier:
             '[[filter]] c = "..."',
         )
     cap_tol = rd.percent(t, "capacitance_tolerance", "rectifier")
-    if cap_tol is not None and cap is None:
-        raise rd.fail("rectifier.capacitance_tolerance", "needs capacitance (doubler and cascade only)")
+    if cap is None:
+        rd.refuse(t, ("capacitance_tolerance", "capacitor_esr", "capacitor_rating", "balancing", "balancing_rating"),
+                  "rectifier", "belongs to the stage capacitors of a doubler or cascade")
+    esr = rd.value(t, "capacitor_esr", "rectifier", "ohm", default=0.0, minimum=0, maximum=1e6)
+    crating = _rating(rd, t, "capacitor_rating", "rectifier", "c")
+    bal = rd.value(t, "balancing", "rectifier", "ohm", above=0, maximum=1e12)
+    brating = _rating(rd, t, "balancing_rating", "rectifier", "r")
+    if brating is not None and bal is None:
+        raise rd.fail("rectifier.balancing_rating", "needs balancing (the resistance across each stage capacitor)")
+    assert esr is not None
     return Rectifier(topology=topology, diode=diode, stages=stages, capacitance=cap,  # type: ignore[arg-type]
-                     capacitance_tolerance=cap_tol)
+                     capacitance_tolerance=cap_tol, capacitor_rating=crating, capacitor_esr=esr, balancing=bal,
+                     balancing_rating=brating)
+
+
+_RATING_KEYS = {
+    "c": {"v": schema.Key("V", "rated voltage"), "ripple": schema.Key("A", "ripple-current rating (RMS)"),
+          "ripple_frequency": schema.Key("Hz", "frequency of the ripple rating")},
+    "l": {"i": schema.Key("A", "rated DC current")},
+    "r": {"w": schema.Key("W", "power rating")},
+}
+
+
+def _rating(rd: _Reader, t: Mapping[str, Any], key: str, path: str, kind: str) -> PartRating | None:
+    if key not in t:
+        return None
+    raw = t[key]
+    full = f"{path}.{key}"
+    if not isinstance(raw, dict):
+        example = {"c": '{ v = "450", ripple = "1.2" }', "l": '{ i = "150m" }', "r": '{ w = "2" }'}[kind]
+        raise rd.fail(full, f"expected a table such as {example}, got {_show(raw)}")
+    rd.check_keys(raw, _RATING_KEYS[kind], full)
+    units = {"v": "V", "ripple": "A", "ripple_frequency": "Hz", "i": "A", "w": "W"}
+    vals = {k: rd.value(raw, k, full, units[k], above=0, maximum=1e6) for k in raw}
+    return PartRating(**vals)  # type: ignore[arg-type]
 
 
 def _diode(rd: _Reader, spec: Any) -> DiodeModel:
@@ -618,18 +655,22 @@ def _diode(rd: _Reader, spec: Any) -> DiodeModel:
     rd.check_keys(spec, schema.DIODE_INLINE, key)
     kind = rd.choice(spec, "kind", key, ("silicon", "vacuum"), default="silicon")
     if kind == "vacuum":
-        rd.refuse(spec, ("is", "n", "rs", "bv", "tt", "cjo", "vrrm", "ifav", "ifsm"), key,
+        rd.refuse(spec, ("is", "n", "rs", "bv", "tt", "cjo", "vrrm", "ifav", "ifsm", "i2t"), key,
                   "belongs to a silicon diode; a vacuum plate takes perveance (and warmup, piv, peak_current)")
         rd.need(spec, "perveance", key, 'the plate perveance in A/V^1.5, e.g. "1m" (i = P v^1.5)')
         perv = rd.value(spec, "perveance", key, "", above=0, maximum=1.0)
         warm = rd.value(spec, "warmup", key, "s", default=0.0, minimum=0, maximum=600)
         assert perv is not None and warm is not None
         ratings = TubeRatings(piv=rd.value(spec, "piv", key, "V", above=0),
-                              peak_current=rd.value(spec, "peak_current", key, "A", above=0))
+                              peak_current=rd.value(spec, "peak_current", key, "A", above=0),
+                              dc_current=rd.value(spec, "dc_current", key, "A", above=0),
+                              max_input_capacitance=rd.value(spec, "max_capacitance", key, "F", above=0),
+                              min_plate_resistance=rd.value(spec, "min_resistance", key, "ohm", minimum=0))
         vac = VacuumDiode(perveance=perv, warmup_start=warm / 2, warmup_full=warm, ratings=ratings)
         return DiodeModel(name="inline vacuum", is_=0.0, n=1.0, rs=0.0, source="given in the design file",
                           vacuum=vac)
-    rd.refuse(spec, ("perveance", "warmup", "piv", "peak_current"), key,
+    rd.refuse(spec, ("perveance", "warmup", "piv", "peak_current", "dc_current", "max_capacitance", "min_resistance"),
+              key,
               'belongs to a vacuum plate; set kind = "vacuum"')
     rd.need(spec, "is", key, 'the saturation current, e.g. "5n"')
     is_ = rd.value(spec, "is", key, "A", above=0, maximum=1.0)
@@ -642,6 +683,7 @@ def _diode(rd: _Reader, spec: Any) -> DiodeModel:
         vrrm=rd.value(spec, "vrrm", key, "V", above=0),
         ifav=rd.value(spec, "ifav", key, "A", above=0),
         ifsm=rd.value(spec, "ifsm", key, "A", above=0),
+        i2t=rd.value(spec, "i2t", key, "", above=0),
     )
     assert is_ is not None and n is not None and rs is not None and tt is not None and cjo is not None
     return DiodeModel(name="inline", is_=is_, n=n, rs=rs, bv=bv, tt=tt, cjo=cjo, ratings=ratings,
@@ -678,7 +720,9 @@ def _filters(rd: _Reader, data: Mapping[str, Any]) -> list[FilterSection]:
         dcr = rd.value(sec, "dcr", path, "ohm", default=0.0, minimum=0, maximum=1e9)
         assert value is not None and esr is not None and dcr is not None
         tol = rd.percent(sec, "tolerance", path)
-        out.append(FilterSection(kind=kind, value=value, esr=esr, dcr=dcr, tolerance=tol))  # type: ignore[arg-type]
+        rating = _rating(rd, sec, "rating", path, kind)
+        out.append(FilterSection(kind=kind, value=value, esr=esr, dcr=dcr, tolerance=tol,  # type: ignore[arg-type]
+                                 rating=rating))
     return out
 
 
@@ -830,7 +874,31 @@ def _bleeder(rd: _Reader, data: Mapping[str, Any]) -> Bleeder | None:
     rd.check_keys(t, schema.BLEEDER, "bleeder")
     r = rd.value(t, "r", "bleeder", "ohm", above=0, maximum=1e12)
     assert r is not None
-    return Bleeder(r=r, tolerance=rd.percent(t, "tolerance", "bleeder"))
+    return Bleeder(r=r, tolerance=rd.percent(t, "tolerance", "bleeder"),
+                   rating=_rating(rd, t, "rating", "bleeder", "r"))
+
+
+def _checks(rd: _Reader, data: Mapping[str, Any]) -> CheckPolicy:
+    t = rd.table(data, "checks", "checks", required=False)
+    if t is None:
+        return CheckPolicy()
+    rd.check_keys(t, schema.CHECKS, "checks")
+    d = CheckPolicy()
+
+    def share(key: str, default: float) -> float:
+        v = rd.percent(t, key, "checks", maximum=1.0 + 1e-12)
+        if v is not None and v <= 0:
+            raise rd.fail(f"checks.{key}", "must be above 0%")
+        return default if v is None else v
+
+    sv = rd.value(t, "safe_voltage", "checks", "V", default=d.safe_voltage, above=0, maximum=1e5)
+    st = rd.value(t, "safe_time", "checks", "s", default=d.safe_time, above=0, maximum=3600)
+    assert sv is not None and st is not None
+    return CheckPolicy(diode_voltage=share("diode_voltage", d.diode_voltage),
+                       capacitor_voltage=share("capacitor_voltage", d.capacitor_voltage),
+                       resistor_power=share("resistor_power", d.resistor_power),
+                       marginal=share("marginal", d.marginal),
+                       safe_voltage=sv, safe_time=st)
 
 
 def _spread(rd: _Reader, data: Mapping[str, Any]) -> SpreadOptions:

@@ -163,6 +163,7 @@ class Source:
     mains_tolerance: float | None = None  # fraction, +- supply range
     transformer: Transformer | None = None
     inverter: Inverter | None = None
+    rated_current: float | None = None  # A RMS per winding (half for centre-tap): what it may carry
 
     @property
     def vpeak(self) -> float:
@@ -176,12 +177,28 @@ class Source:
 
 
 @dataclass(frozen=True)
+class PartRating:
+    """Ratings a design gives for one of its own parts (all optional)."""
+
+    v: float | None = None  # V: capacitor rated voltage
+    ripple: float | None = None  # A RMS: capacitor ripple-current rating
+    ripple_frequency: float | None = None  # Hz at which the ripple rating is stated
+    i: float | None = None  # A: choke rated DC current
+    w: float | None = None  # W: resistor power rating
+    source: str = "design file"
+
+
+@dataclass(frozen=True)
 class Rectifier:
     topology: Topology
     diode: DiodeModel
     stages: int = 1  # cascade only
     capacitance: float | None = None  # F, doubler and cascade stage capacitors
     capacitance_tolerance: float | None = None  # fraction, for spread
+    capacitor_rating: PartRating | None = None  # of each stage capacitor
+    capacitor_esr: float = 0.0  # ohm, of each stage capacitor
+    balancing: float | None = None  # ohm across each stage capacitor
+    balancing_rating: PartRating | None = None
 
 
 @dataclass(frozen=True)
@@ -193,6 +210,7 @@ class FilterSection:
     esr: float = 0.0  # ohm, c only
     dcr: float = 0.0  # ohm, l only
     tolerance: float | None = None  # fraction of value, for spread
+    rating: PartRating | None = None
 
 
 @dataclass(frozen=True)
@@ -243,6 +261,19 @@ class Load:
 class Bleeder:
     r: float  # ohm
     tolerance: float | None = None  # fraction, for spread
+    rating: PartRating | None = None
+
+
+@dataclass(frozen=True)
+class CheckPolicy:
+    """Derating and safety limits of `simkit check` (defaults: common practice)."""
+
+    diode_voltage: float = 0.8  # share of VRRM / PIV a diode may see
+    capacitor_voltage: float = 0.9  # share of the rated voltage
+    resistor_power: float = 0.5  # share of the power rating
+    marginal: float = 0.1  # within this share of a limit: "marginal"
+    safe_voltage: float = 60.0  # V: every capacitor below this ...
+    safe_time: float = 5.0  # s: ... within this time after switch-off (load gone)
 
 
 @dataclass(frozen=True)
@@ -273,6 +304,7 @@ class Design:
     battery: Battery | None = None
     simulation: SimulationOptions = field(default_factory=SimulationOptions)
     spread: SpreadOptions = field(default_factory=SpreadOptions)
+    checks: CheckPolicy = field(default_factory=CheckPolicy)
     note: str = ""
     origin: str = "<design>"  # file the design came from, for messages
 

@@ -31,6 +31,7 @@ TOP: dict[str, Key] = {
     "battery": Key("table", "the battery behind an inverter source"),
     "simulation": Key("table", "how the analyses run"),
     "spread": Key("table", "how `simkit spread` draws values within their tolerances"),
+    "checks": Key("table", "derating policy and safety limits of `simkit check`"),
 }
 
 SOURCE: dict[str, Key] = {
@@ -49,7 +50,8 @@ SOURCE: dict[str, Key] = {
     "primary_vrms": Key("V", "transformer: rated primary (mains) voltage"),
     "secondary_vrms": Key("V", "transformer: rated secondary voltage at rated current, whole winding "
                           "(a 300-0-300 V winding is 600 with centre_tap = true)"),
-    "rated_current": Key("A", "transformer: rated secondary RMS current"),
+    "rated_current": Key("A", "transformer: rated secondary RMS current; sine: the winding's RMS current "
+                         "rating (each half for centre-tap), for `simkit check`"),
     "regulation": Key("%", "transformer: rise of the secondary voltage from full load to no load"),
     "primary_resistance": Key("ohm", "transformer: measured primary winding resistance (with "
                               "secondary_resistance, instead of regulation)"),
@@ -94,6 +96,12 @@ RECTIFIER: dict[str, Key] = {
     "stages": Key("int", "cascade only: number of stages (n stages give about 2n x Vpeak)", default="1"),
     "capacitance": Key("F", "doubler and cascade: each stage capacitor", default="required there"),
     "capacitance_tolerance": Key("%", "tolerance of capacitance, for `simkit spread`", default="none"),
+    "capacitor_esr": Key("ohm", "doubler and cascade: ESR of each stage capacitor", default="0"),
+    "capacitor_rating": Key("table", 'doubler and cascade: ratings of each stage capacitor, '
+                            '{ v = "450", ripple = "1.2", ripple_frequency = "100" }'),
+    "balancing": Key("ohm", "doubler and cascade: a balancing resistor across each stage capacitor",
+                     default="none"),
+    "balancing_rating": Key("table", 'power rating of each balancing resistor, { w = "1" }'),
 }
 
 DIODE_INLINE: dict[str, Key] = {
@@ -112,7 +120,11 @@ DIODE_INLINE: dict[str, Key] = {
     "cjo": Key("F", "zero-bias junction capacitance", default="0"),
     "vrrm": Key("V", "rated repetitive peak reverse voltage, for checks", default="none"),
     "ifav": Key("A", "rated mean forward current, for checks", default="none"),
-    "ifsm": Key("A", "rated surge current, for checks", default="none"),
+    "ifsm": Key("A", "rated surge current (8.3 ms half-sine), for checks", default="none"),
+    "i2t": Key("", "rated I2t, A^2 s, for checks", default="none"),
+    "dc_current": Key("A", "vacuum: rated DC output current, for checks", default="none"),
+    "max_capacitance": Key("F", "vacuum: largest input (reservoir) capacitance allowed", default="none"),
+    "min_resistance": Key("ohm", "vacuum: smallest supply resistance per plate allowed", default="none"),
 }
 
 FILTER: dict[str, Key] = {
@@ -122,6 +134,8 @@ FILTER: dict[str, Key] = {
     "dcr": Key("ohm", "winding resistance of l", default="0"),
     "r": Key("ohm", "series resistor"),
     "tolerance": Key("%", "tolerance of the section's c, l or r value, for `simkit spread`", default="none"),
+    "rating": Key("table", 'ratings, for `simkit check`: c { v = "450", ripple = "1.2", ripple_frequency = "100" }, '
+                  'l { i = "150m" }, r { w = "2" }'),
 }
 
 LOAD: dict[str, Key] = {
@@ -156,6 +170,16 @@ LOAD: dict[str, Key] = {
 BLEEDER: dict[str, Key] = {
     "r": Key("ohm", "bleeder resistance across the output", required=True),
     "tolerance": Key("%", "tolerance of r, for `simkit spread`", default="none"),
+    "rating": Key("table", 'power rating, { w = "2" }, for `simkit check`'),
+}
+
+CHECKS: dict[str, Key] = {
+    "diode_voltage": Key("%", "a diode may see this share of its VRRM (a tube, of its PIV)", default="80%"),
+    "capacitor_voltage": Key("%", "a capacitor may see this share of its rated voltage", default="90%"),
+    "resistor_power": Key("%", "a resistor may dissipate this share of its rating", default="50%"),
+    "marginal": Key("%", "a value within this share of its limit is marginal", default="10%"),
+    "safe_voltage": Key("V", "after switch-off every capacitor must fall below this ...", default="60"),
+    "safe_time": Key("s", "... within this time (load gone, bleeder only)", default="5"),
 }
 
 SPREAD: dict[str, Key] = {
@@ -189,4 +213,5 @@ SECTIONS: dict[str, dict[str, Key]] = {
     "bleeder": BLEEDER,
     "simulation": SIMULATION,
     "spread": SPREAD,
+    "checks": CHECKS,
 }

@@ -267,6 +267,16 @@ class _Builder:
         self.c.capacitors.append(CapRef(name, plus, minus, inner, low, f"VC{k}", value, role))
         return name
 
+    def stage_cap(self, plus: str, minus: str) -> None:
+        """A doubler or cascade capacitor, with its balancing resistor when the design has one."""
+        r = self.d.rectifier
+        assert r.capacitance is not None
+        name = self.capacitor(plus, minus, r.capacitance, r.capacitor_esr, "stage")
+        if r.balancing is not None:
+            rname = f"RBAL{name[1:]}"
+            self.c.add(Element(rname, (plus, minus), spice(r.balancing), comment=f"balances {name}"))
+            self.c.resistors.append(ResRef(rname, plus, minus, r.balancing, "balancing"))
+
     def choke(self, a: str, b: str, value: float, dcr: float) -> None:
         self.n_ind += 1
         k = self.n_ind
@@ -312,8 +322,8 @@ class _Builder:
             self.tie("mid")
             self.diode("ac1", top)
             self.diode("0", "ac1")
-            self.capacitor(top, "mid", r.capacitance, 0.0, "stage")
-            self.capacitor("mid", "0", r.capacitance, 0.0, "stage")
+            self.stage_cap(top, "mid")
+            self.stage_cap("mid", "0")
         elif r.topology == "cascade":
             assert r.capacitance is not None
             n = r.stages
@@ -323,10 +333,10 @@ class _Builder:
                 p_prev = f"p{k - 1}"
                 p_k = f"p{k}"
                 s_k = top if k == n else f"s{k}"
-                self.capacitor(p_k, p_prev, r.capacitance, 0.0, "stage")  # plus on the higher node
+                self.stage_cap(p_k, p_prev)  # plus on the higher node
                 self.diode(s_prev, p_k)
                 self.diode(p_k, s_k)
-                self.capacitor(s_k, s_prev, r.capacitance, 0.0, "stage")
+                self.stage_cap(s_k, s_prev)
                 s_prev = s_k
         else:  # pragma: no cover - the loader refuses other names
             raise ValueError(r.topology)
@@ -361,6 +371,9 @@ class _Builder:
         if self.d.bleeder is not None:
             self.c.add(Element("RBLEED", ("out", "0"), spice(self.d.bleeder.r), comment="bleeder"))
             self.c.resistors.append(ResRef("RBLEED", "out", "0", self.d.bleeder.r, "bleeder"))
+        elif not self.d.loads:
+            # Nothing across the output (an idle supply, or the load gone): 1 G keeps the node defined.
+            self.c.add(Element("RTOUT", ("out", "0"), spice(1e9), comment="keeps an unloaded output defined"))
 
     def load(self, idx: int, ld: Load, node: str) -> None:
         sfx = ld.name[4:]  # "" or the load's number

@@ -1,0 +1,250 @@
+"""Stress and safety rules: each part's worst figure over the corners against its (derated) rating.
+
+A verdict is ``fail`` when the value is beyond the limit, ``marginal`` when it is within
+``checks.marginal`` (10 %) of it, ``pass`` otherwise.  The margin is the headroom as a
+fraction of the limit (negative when failing).  Limits apply the design's derating policy
+(``[checks]``; the defaults are common practice, not a standard): a diode may see 80 % of
+its VRRM, a capacitor 90 % of its rated voltage, a resistor may dissipate 50 % of its
+rating.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+from simkit.checks.corners import Corners, corner_names
+from simkit.design.model import Design, PartRating
+from simkit.pipeline import RunResult
+
+
+@dataclass(frozen=True)
+class Verdict:
+    part: str
+    rule: str
+    value: float
+    limit: float
+    unit: str
+    corner: str
+    verdict: str  # "pass" | "marginal" | "fail"
+    margin: float | None  # headroom as a fraction of the limit
+    basis: str = ""  # where the limit comes from
+
+    def to_json(self) -> dict[str, Any]:
+        def clean(x: float | None) -> float | None:
+            return None if x is None or not math.isfinite(x) else x
+
+        return {"part": self.part, "rule": self.rule, "value": clean(self.value), "limit": clean(self.limit),
+                "margin": clean(self.margin), "verdict": self.verdict, "corner": self.corner, "unit": self.unit,
+                "basis": self.basis}
+
+
+@dataclass
+class Findings:
+    verdicts: list[Verdict] = field(default_factory=list)
+    not_checked: list[str] = field(default_factory=list)
+
+
+def judge(value: float, limit: float, marginal: float, minimum: bool = False) -> tuple[str, float | None]:
+    """Verdict and margin of a value against a maximum (or, with ``minimum``, a minimum) limit."""
+    if limit == 0:
+        return ("pass" if value <= 0 else "fail"), None
+    if math.isinf(value):
+        return ("pass" if minimum else "fail"), -math.inf if not minimum else math.inf
+    margin = (value - limit) / limit if minimum else (limit - value) / limit
+    if margin < 0:
+        return "fail", margin
+    if margin < marginal:
+        return "marginal", margin
+    return "pass", margin
+
+
+def _worst(corners: Corners, names: list[str], get: Callable[[RunResult], float | None]) -> tuple[float, str] | None:
+    best: tuple[float, str] | None = None
+    for name in names:
+        r = corners.results.get(name)
+        if r is None:
+            continue
+        v = get(r)
+        if v is None:
+            continue
+        if best is None or v > best[0]:
+            best = (v, name)
+    return best
+
+
+def evaluate(design: Design, corners: Corners) -> Findings:
+    pol = design.checks
+    f = Findings()
+    cn = corner_names(corners.mains_tolerance)
+    steady = [cn["light"], cn["heavy"], cn["low"], cn["cold"]]
+    loaded = [cn["light"], cn["heavy"], cn["low"]]
+
+    def add(part: str, rule: str, value: float, limit: float, unit: str, corner: str, basis: str,
+            minimum: bool = False) -> None:
+        verdict, margin = judge(value, limit, pol.marginal, minimum)
+        f.verdicts.append(Verdict(part, rule, value, limit, unit, corner, verdict, margin, basis))
+
+    def part_max(part: str, key: str, names: list[str] = steady) -> tuple[float, str] | None:
+        return _worst(corners, names, lambda r: r.parts.get(part, {}).get(key))
+
+    any_result = corners.results[cn["heavy"]]
+    circuit = any_result.circuit
+    diode = design.rectifier.diode
+    vac = diode.vacuum
+    derate_txt = f"{pol.diode_voltage * 100:g} % of"
+
+    # --- rectifiers -----------------------------------------------------------------------------------
+    for d in circuit.diodes:
+        piv = _worst(corners, steady, lambda r, n=d.name: max(r.parts[n]["piv_v"], r.parts[n]["switch_on_piv_v"]))
+        assert piv is not None
+        surge = (any_result.parts[d.name]["surge_peak_a"], cn["on"])
+        i2t = (any_result.parts[d.name]["surge_i2t_a2s"], cn["on"])
+        avg = part_max(d.name, "avg_a", loaded)
+        peak = part_max(d.name, "peak_a", loaded)
+        if vac is None:
+            r = diode.ratings
+            src = diode.source or diode.name
+            if r.vrrm:
+                add(d.name, "reverse voltage", piv[0], pol.diode_voltage * r.vrrm, "V", piv[1],
+                    f"{derate_txt} VRRM {r.vrrm:g} V ({src})")
+            else:
+                f.not_checked.append(f"{d.name} reverse voltage: no VRRM given")
+            if r.ifsm:
+                add(d.name, "surge current", surge[0], r.ifsm, "A", surge[1],
+                    f"IFSM {r.ifsm:g} A, 8.3 ms half-sine ({src})")
+            else:
+                f.not_checked.append(f"{d.name} surge current: no IFSM given")
+            if r.i2t:
+                add(d.name, "surge I2t", i2t[0], r.i2t, "A2s", i2t[1], f"I2t {r.i2t:g} A2s ({src})")
+            if r.ifav and avg:
+                add(d.name, "mean current", avg[0], r.ifav, "A", avg[1], f"IF(AV) {r.ifav:g} A ({src})")
+            elif not r.ifav:
+                f.not_checked.append(f"{d.name} mean current: no IF(AV) given")
+        else:
+            tr = vac.ratings
+            src = diode.source or diode.name
+            if tr.piv:
+                add(d.name, "peak inverse voltage", piv[0], pol.diode_voltage * tr.piv, "V", piv[1],
+                    f"{derate_txt} PIV {tr.piv:g} V ({src})")
+            else:
+                f.not_checked.append(f"{d.name} peak inverse voltage: no PIV given")
+            if tr.peak_current and peak:
+                add(d.name, "peak plate current", peak[0], tr.peak_current, "A", peak[1],
+                    f"peak plate current {tr.peak_current:g} A ({src})")
+            elif not tr.peak_current:
+                f.not_checked.append(f"{d.name} peak plate current: no rating given")
+            if tr.min_plate_resistance is not None:
+                add(d.name, "supply resistance per plate", design.source.resistance, tr.min_plate_resistance, "ohm",
+                    "the design", f"minimum {tr.min_plate_resistance:g} ohm per plate ({src})", minimum=True)
+    if vac is not None:
+        tr = vac.ratings
+        src = diode.source or diode.name
+        first_c = design.filters[0].value if design.filters and design.filters[0].kind == "c" else None
+        if tr.max_input_capacitance and first_c is not None:
+            add(diode.name, "input capacitance", first_c, tr.max_input_capacitance, "F", "the design",
+                f"maximum input capacitance {tr.max_input_capacitance * 1e6:g} uF ({src})")
+        if tr.dc_current:
+            dc = _worst(corners, loaded, lambda r: sum(p["avg_a"] for k, p in r.parts.items()
+                                                       if k.startswith("D")) / _per_path(design))
+            if dc:
+                add(diode.name, "DC output current", dc[0], tr.dc_current, "A", dc[1],
+                    f"maximum DC output {tr.dc_current * 1e3:g} mA, capacitor input ({src})")
+
+    # --- capacitors ---------------------------------------------------------------------------------------
+    for name, rating, what in _capacitor_ratings(design, circuit):
+        pk = part_max(name, "peak_v")
+        rip = part_max(name, "ripple_rms_a", loaded)
+        if rating is None or rating.v is None:
+            f.not_checked.append(f"{name} voltage: no rating given ({what}: add rating = {{ v = ... }})")
+        elif pk:
+            add(name, "peak voltage", pk[0], pol.capacitor_voltage * rating.v, "V", pk[1],
+                f"{pol.capacitor_voltage * 100:g} % of {rating.v:g} V ({rating.source})")
+        if rating is not None and rating.ripple is not None and rip:
+            at = f" at {rating.ripple_frequency:g} Hz" if rating.ripple_frequency else ""
+            add(name, "ripple current", rip[0], rating.ripple, "A", rip[1],
+                f"ripple rating {rating.ripple:g} A{at} (no frequency correction) ({rating.source})")
+        elif rating is None or rating.ripple is None:
+            f.not_checked.append(f"{name} ripple current: no ripple rating given")
+    r = design.rectifier
+    if r.topology in ("doubler", "cascade") and r.capacitance is not None:
+        stage = [c.name for c in circuit.capacitors if c.role == "stage"]
+        electrolytic = r.capacitance >= 1e-6
+        if r.balancing is None and electrolytic:
+            add(", ".join(stage), "balancing resistors across series capacitors", len(stage), 0, "missing",
+                "the design", "electrolytic capacitors in series share voltage by their leakage unless each has "
+                "a resistor across it (common practice)")
+        elif r.balancing is None:
+            f.not_checked.append("series stage capacitors under 1 uF (film): no balancing resistors checked")
+
+    # --- chokes, resistors, winding -------------------------------------------------------------------------
+    chokes = [s for s in design.filters if s.kind == "l"]
+    for k, sec in enumerate(chokes, start=1):
+        name = f"L{k}"
+        dc = part_max(name, "dc_a", loaded)
+        if sec.rating is not None and sec.rating.i is not None and dc:
+            add(name, "DC current", abs(dc[0]), sec.rating.i, "A", dc[1], f"rated {sec.rating.i:g} A (design file)")
+        else:
+            f.not_checked.append(f"{name} current: no rating given (add rating = {{ i = ... }})")
+    for name, rating in _resistor_ratings(design, circuit):
+        diss = part_max(name, "dissipation_w")
+        if rating is not None and rating.w is not None and diss:
+            add(name, "dissipation", diss[0], pol.resistor_power * rating.w, "W", diss[1],
+                f"{pol.resistor_power * 100:g} % of {rating.w:g} W (design file)")
+        else:
+            f.not_checked.append(f"{name} dissipation: no power rating given (add rating = {{ w = ... }})")
+    src = design.source
+    if src.rated_current:
+        for w in circuit.windings:
+            rms = part_max(w.name, "rms_a", loaded)
+            if rms:
+                add(w.name, "winding RMS current", rms[0], src.rated_current, "A", rms[1],
+                    f"rated {src.rated_current:g} A ({'nameplate' if src.transformer else 'design file'})")
+    elif src.inverter is None:
+        f.not_checked.append("winding current: no rated_current given")
+    if src.inverter is not None:
+        va = _worst(corners, loaded, lambda r: r.metrics["source_va"])
+        if va:
+            add("V1", "inverter apparent power", va[0], src.inverter.rated_power, "VA", va[1],
+                f"rated {src.inverter.rated_power:g} W; a capacitor-input load draws more VA than W")
+
+    # --- switch-off ---------------------------------------------------------------------------------------------
+    off = corners.off
+    for name, t in off.time_to_safe.items():
+        add(name, f"discharge below {pol.safe_voltage:g} V", t, pol.safe_time, "s", cn["off"],
+            f"within {pol.safe_time:g} s, load gone; from {off.start_v[name]:.4g} V (IEC 61010-1 / IEC 60204-1 "
+            "style limit, configurable)")
+    return f
+
+
+def _per_path(design: Design) -> float:
+    """Diodes that carry each unit of DC output current in turn (2 for a bridge's pairs)."""
+    return 2.0 if design.rectifier.topology == "bridge" else 1.0
+
+
+def _capacitor_ratings(design: Design, circuit: Any) -> list[tuple[str, PartRating | None, str]]:
+    caps = [c for c in circuit.capacitors if c.role not in ("snubber", "aux")]
+    out: list[tuple[str, PartRating | None, str]] = []
+    filt = iter([s for s in design.filters if s.kind == "c"])
+    for c in caps:
+        if c.role == "stage":
+            out.append((c.name, design.rectifier.capacitor_rating, "rectifier.capacitor_rating"))
+        else:
+            sec = next(filt)
+            out.append((c.name, sec.rating, "filter section"))
+    return out
+
+
+def _resistor_ratings(design: Design, circuit: Any) -> list[tuple[str, PartRating | None]]:
+    out: list[tuple[str, PartRating | None]] = []
+    res_secs = iter([s for s in design.filters if s.kind == "r"])
+    for r in circuit.resistors:
+        if r.role == "filter":
+            out.append((r.name, next(res_secs).rating))
+        elif r.role == "bleeder":
+            out.append((r.name, design.bleeder.rating if design.bleeder else None))
+        elif r.role == "balancing":
+            out.append((r.name, design.rectifier.balancing_rating))
+    return out
