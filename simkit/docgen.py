@@ -32,6 +32,7 @@ _TITLES = {
     "bleeder": "[bleeder]",
     "simulation": "[simulation]",
     "spread": "[spread]",
+    "checks": "[checks] (derating policy and safety limits of `simkit check`)",
 }
 
 
