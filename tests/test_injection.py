@@ -283,6 +283,18 @@ FIELDS: list[Field] = [
     *(Field(f"rectifier.diode.{k}", TRANSFORMER_TOML, f"{k} = {{v}}".replace("{v}", g), f"{k} = {{v}}", g.strip('"'))
       for k, g in (("kind", '"vacuum"'), ("perveance", '"1m"'), ("warmup", '"10"'), ("piv", '"1400"'),
                    ("peak_current", '"0.5"'))),
+    *(Field(f"checks.{k}", BRIDGE_TOML + "[checks]\n#\n", "#\n", f"{k} = {{v}}\n", good)
+      for k, good in (("diode_voltage", "80%"), ("capacitor_voltage", "90%"), ("resistor_power", "50%"),
+                      ("marginal", "10%"), ("safe_voltage", "60"), ("safe_time", "5"))),
+    Field("source.rated_current", BRIDGE_TOML, 'resistance = "25"', 'resistance = "25"\nrated_current = {v}', "0.3"),
+    Field("rectifier.capacitor_esr", DOUBLER_TOML, 'capacitance = "220u"', 'capacitance = "220u"\ncapacitor_esr = {v}',
+          "0.1"),
+    Field("rectifier.balancing", DOUBLER_TOML, 'capacitance = "220u"', 'capacitance = "220u"\nbalancing = {v}',
+          "100k"),
+    *(Field(f"rectifier.diode.{k}", TRANSFORMER_TOML, 'peak_current = "0.5" }', f'peak_current = "0.5", {k} = {{v}} }}',
+            g) for k, g in (("dc_current", "0.2"), ("max_capacitance", "40u"), ("min_resistance", "50"))),
+    Field("rectifier.diode.i2t", BRIDGE_TOML, INLINE, 'diode = { is = "5n", i2t = {v} }', "3.7"),
+    Field("filter.0.rating.v", BRIDGE_TOML, 'esr = "0.2"', 'esr = "0.2"\nrating = { v = {v} }', "450"),
     Field("spread.distribution", BRIDGE_TOML + "[spread]\n#\n", "#\n", "distribution = {v}\n", "normal"),
     *(Field(f"simulation.{k}", BRIDGE_TOML + "[simulation]\n#\n", "#\n", f"{k} = {{v}}\n", good)
       for k, good in (("switch_on_phase", "90"), ("steps_per_period", "1000"), ("settle_tolerance", "1e-4"),

@@ -5,7 +5,7 @@ from __future__ import annotations
 import difflib
 
 from simkit.errors import UsageError
-from simkit.parts import diodes
+from simkit.parts import diodes, tubes
 from simkit.units import eng
 
 
@@ -17,6 +17,18 @@ def listing() -> str:
         r = p.ratings
         lines.append(f"  {p.name:<8} {eng(r.vrrm or 0, 'V'):>7} {eng(r.ifav or 0, 'A'):>7} "
                      f"{eng(r.ifsm or 0, 'A'):>6}  {p.description}")
+    lines.append("")
+    lines.append("Vacuum rectifiers (per plate: i = P v^1.5; heater warm-up after switch-on):")
+    lines.append(f"  {'name':<8} {'PIV':>7} {'Ipk':>7} {'DC':>7} {'max C':>7}  description")
+    for name in tubes.names():
+        t = tubes.TUBES[name.upper()]
+        r = t.ratings
+
+        def show(x: float | None, unit: str) -> str:
+            return eng(x, unit) if x else "-"
+
+        lines.append(f"  {t.name:<8} {show(r.piv, 'V'):>7} {show(r.peak_current, 'A'):>7} "
+                     f"{show(r.dc_current, 'A'):>7} {show(r.max_input_capacitance, 'F'):>7}  {t.description}")
     lines.append("Details and sources: simkit parts NAME")
     return "\n".join(lines) + "\n"
 
@@ -24,8 +36,12 @@ def listing() -> str:
 def describe(name: str) -> str:
     p = diodes.lookup(name)
     if p is None:
-        near = difflib.get_close_matches(name.upper(), list(diodes.DIODES), n=1, cutoff=0.5)
-        hint = f"; did you mean {diodes.DIODES[near[0]].name}?" if near else ""
+        t = tubes.lookup(name)
+        if t is not None:
+            return _describe_tube(t)
+        known = {**{k: v.name for k, v in diodes.DIODES.items()}, **{k: v.name for k, v in tubes.TUBES.items()}}
+        near = difflib.get_close_matches(name.upper(), list(known), n=1, cutoff=0.5)
+        hint = f"; did you mean {known[near[0]]}?" if near else ""
         raise UsageError(f"no part {name!r} in the library{hint} (simkit parts lists them)")
     r = p.ratings
     rows = [
@@ -42,4 +58,24 @@ def describe(name: str) -> str:
     ]
     width = max(len(k) for k, _ in rows)
     out = [f"{p.name}: {p.description}"] + [f"  {k:<{width}}  {v}" for k, v in rows]
+    return "\n".join(out) + "\n"
+
+
+def _describe_tube(t: tubes.TubePart) -> str:
+    r = t.ratings
+    m = t.model()
+    assert m.vacuum is not None
+    rows = [
+        ("PIV", eng(r.piv, "V") if r.piv else "not found"),
+        ("peak plate current", eng(r.peak_current, "A") if r.peak_current else "not found"),
+        ("DC output (capacitor input)", eng(r.dc_current, "A") if r.dc_current else "-"),
+        ("max input capacitance", eng(r.max_input_capacitance, "F") if r.max_input_capacitance else "-"),
+        ("min supply resistance per plate", eng(r.min_plate_resistance, "ohm") if r.min_plate_resistance else "-"),
+        ("plate law", f"i = {t.perveance:.4g} v^1.5 (fitted to {eng(t.drop_v, 'V')} at {eng(t.drop_i, 'A')})"),
+        ("heater", f"{'directly' if t.directly_heated else 'indirectly'} heated: emission from "
+                   f"{m.vacuum.warmup_start:g} s, full at {m.vacuum.warmup_full:g} s (common practice)"),
+        ("ratings from", t.source),
+    ]
+    width = max(len(k) for k, _ in rows)
+    out = [f"{t.name}: {t.description}"] + [f"  {k:<{width}}  {v}" for k, v in rows]
     return "\n".join(out) + "\n"
