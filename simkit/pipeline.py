@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -69,6 +69,18 @@ FIGURES: dict[str, tuple[str, str]] = {
     "battery_keydown_current_a": ("A", "mean battery current while key-down, in steady keying"),
     "battery_keyup_current_a": ("A", "mean battery current while key-up, in steady keying"),
     "runtime_keyed_h": ("h", "usable capacity / mean battery current at the keying duty"),
+    # Regulator (with a [regulator]).
+    "reg_vin_v": ("V", "mean regulator input (the filter's output)"),
+    "reg_vout_v": ("V", "mean regulated output"),
+    "reg_headroom_min_v": ("V", "lowest input minus output over the analysed span (steady state and keying)"),
+    "reg_dissipation_w": ("W", "mean dissipation of the pass device or shunt element"),
+    "reg_dissipation_peak_w": ("W", "highest dissipation of the pass device or shunt element"),
+    "shunt_current_min_a": ("A", "lowest shunt current over the analysed span"),
+    "shunt_current_max_a": ("A", "highest shunt current over the analysed span"),
+    "load_regulation_pct": ("%", "output change from the light load to the design load, % of the output"),
+    "line_regulation_pct": ("%", "output change over the mains range (+- tolerance, or +-10 %), % of the output"),
+    "line_input_change_pct": ("%", "the regulator input's change over the same range, for comparison"),
+    "ripple_rejection_db": ("dB", "20 log10 of input ripple over output ripple (peak-to-peak)"),
 }
 
 
@@ -107,11 +119,12 @@ def _clean(v: Any) -> Any:
     return v
 
 
-def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0) -> RunResult:
+def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0, regulation: bool = True) -> RunResult:
     """Run the analyses of a design and compute every figure.
 
     The steady state first (its output voltage is the target the start-up run watches), then
-    the start-up run from empty capacitors, then, for keyed loads, steady keying.
+    the start-up run from empty capacitors, then, for keyed loads, steady keying, and with a
+    regulator (unless ``regulation`` is false) the extra runs for load and line regulation.
     """
     eng = engine or get_engine()
     circuit = build_circuit(design, phase_deg=0.0, vscale=vscale)
@@ -129,7 +142,43 @@ def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0) 
         cycle = max(keying_drive(ld).period or 0.0 for ld in design.keyed)
         keyed = keyed_steady(eng, design, keyed_circuit, end_state(mean_circuit, mean.final.waves), cycle)
         keyed.circuit = keyed_circuit  # type: ignore[attr-defined]
-    return figures(design, circuit, steady, start, start_circuit, keyed)
+    result = figures(design, circuit, steady, start, start_circuit, keyed)
+    if design.regulator is not None and regulation:
+        _regulation(eng, design, vscale, result)
+    return result
+
+
+def _steady_output(eng: Engine, design: Design, vscale: float) -> tuple[float, float]:
+    """Mean regulator input and output voltages of a steady-state run, V (at most 60 periods: a regulator that
+    never settles there, such as a glow tube that keeps striking and going out, gets approximate figures)."""
+    c = build_circuit(design, phase_deg=0.0, vscale=vscale)
+    limit = min(design.simulation.max_settle_time or math.inf, 60 * c.period)
+    design = replace(design, simulation=replace(design.simulation, max_settle_time=limit))
+    st = steady_state(eng, design, c, vscale)
+    w = st.final.waves
+    t0, t1 = st.final.tstop - MEASURE_PERIODS * c.period, st.final.tstop
+    return mx.mean(w.time, w.v("raw"), t0, t1), mx.mean(w.time, w.v("out"), t0, t1)
+
+
+def _regulation(eng: Engine, design: Design, vscale: float, result: RunResult) -> None:
+    """Load and line regulation from extra steady-state runs (light load; mains +- tolerance or 10 %)."""
+    from simkit.checks.corners import lighten
+
+    m = result.metrics
+    light_loads = tuple(lighten(ld) for ld in design.loads)
+    if light_loads == design.loads:  # fixed loads: from no load to the design's load
+        light_loads = ()
+    _, v_light = _steady_output(eng, replace(design, loads=light_loads), vscale)
+    v_full = m["reg_vout_v"]
+    m["load_regulation_pct"] = 100 * (v_light - v_full) / v_full if v_full else math.nan
+    tol = design.source.mains_tolerance or 0.1
+    in_hi, out_hi = _steady_output(eng, design, vscale * (1 + tol))
+    in_lo, out_lo = _steady_output(eng, design, vscale * (1 - tol))
+    m["line_regulation_pct"] = 100 * (out_hi - out_lo) / v_full if v_full else math.nan
+    m["line_input_change_pct"] = 100 * (in_hi - in_lo) / m["reg_vin_v"] if m["reg_vin_v"] else math.nan
+    if out_lo < 0.98 * v_full:
+        result.warnings.append(f"at {100 * tol:g} % low mains the regulated output falls to {out_lo:.4g} V "
+                               "(out of regulation)")
 
 
 def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, start_circuit: Circuit | None = None,
@@ -186,7 +235,7 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
     cap_peaks: list[float] = []
     reservoir_currents: list[float] = []
     for c in circuit.capacitors:
-        if c.role in ("snubber", "aux"):
+        if not c.is_part:
             continue
         v = w.v(c.plus) - w.v(c.minus)
         v_on = sw.v(c.plus) - sw.v(c.minus)
@@ -234,7 +283,7 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
         v = w.v(r.a) - w.v(r.b)
         parts[r.name] = {
             "role": {"filter": "filter resistor", "bleeder": "bleeder", "winding": "winding resistance",
-                     "balancing": "balancing resistor"}[r.role],
+                     "balancing": "balancing resistor", "regulator": "regulator resistor"}[r.role],
             "value_ohm": r.value,
             "dissipation_w": mx.mean(t, v * v, t0, t1) / r.value,
             "dc_a": mx.mean(t, v, t0, t1) / r.value,
@@ -279,6 +328,8 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
         _keyed_figures(design, keyed, m, warnings)
     elif any(ld.kind == "steps" for ld in design.loads):
         _step_figures(design, sc, start, m, warnings)
+    if design.regulator is not None:
+        _regulator_figures(design, circuit, w, (t0, t1), keyed, sc, start, m, parts, warnings)
 
     if steady.final.retried:
         warnings.append("ngspice needed safer options (method=gear) to converge; figures may be less precise")
@@ -312,7 +363,7 @@ def _start_figures(design: Design, circuit: Circuit, sc: Circuit, start: Run, m:
         t_on = min(warm)
         sel = sw.time <= t_on
         peaks = [float(np.max(np.abs(sw.v(c.plus)[sel] - sw.v(c.minus)[sel])))
-                 for c in sc.capacitors if c.role not in ("snubber", "aux")]
+                 for c in sc.capacitors if c.is_part]
         m["cap_peak_warmup_v"] = max(peaks) if peaks else 0.0
         m["vout_warmup_v"] = float(np.max(v[sel]))
 
@@ -402,6 +453,68 @@ def _keyed_figures(design: Design, keyed: KeyedRun, m: dict[str, float], warning
         b_ = design.battery
         assert b_ is not None
         m["runtime_keyed_h"] = b_.capacity * b_.usable_fraction / mean_i if mean_i > 0 else math.inf
+
+
+def _regulator_figures(design: Design, circuit: Circuit, w: Waveforms, window: tuple[float, float],
+                       keyed: KeyedRun | None, sc: Circuit, start: Run, m: dict[str, float],
+                       parts: dict[str, dict[str, Any]], warnings: list[str]) -> None:
+    """Output, headroom, dissipation, shunt current and ripple rejection of the regulator.
+
+    Extremes run over the analysed span: the steady state and, with a keyed load, the
+    steady keying cycle.
+    """
+    reg = design.regulator
+    assert reg is not None
+    t0, t1 = window
+    t = w.time
+    vin, vout = w.v("raw"), w.v("out")
+    spans = [(t, vin, vout, w, t0, t1)]
+    if keyed is not None:
+        kw = keyed.run.waves
+        kt = kw.time + keyed.run.offset
+        spans.append((kt, kw.v("raw"), kw.v("out"), kw, *keyed.window))
+    m["reg_vin_v"] = mx.mean(t, vin, t0, t1)
+    m["reg_vout_v"] = mx.mean(t, vout, t0, t1)
+    m["reg_headroom_min_v"] = min(mx.trough(tt, a - b, c0, c1) for tt, a, b, _, c0, c1 in spans)
+    rin = mx.peak_to_peak(t, vin, t0, t1)
+    rout = mx.peak_to_peak(t, vout, t0, t1)
+    m["ripple_rejection_db"] = 20 * math.log10(rin / rout) if rout > 0 and rin > 0 else math.nan
+
+    def power(ww: Waveforms) -> np.ndarray:
+        if reg.kind == "series":
+            return (ww.v("drn") - ww.v("out")) * ww.i("vpass")
+        return ww.v("sh") * ww.i("vshunt")
+
+    means = [mx.mean(tt, power(ww), c0, c1) for tt, _, _, ww, c0, c1 in spans]
+    peaks = [mx.peak(tt, power(ww), c0, c1) for tt, _, _, ww, c0, c1 in spans]
+    m["reg_dissipation_w"] = means[0]
+    m["reg_dissipation_peak_w"] = max(peaks)
+    name = "MPASS" if reg.kind == "series" else ("DZ" if reg.zener is not None else "GLOW")
+    entry: dict[str, Any] = {"role": "pass device" if reg.kind == "series" else "shunt element",
+                             "dissipation_w": means[0], "dissipation_peak_w": max(peaks)}
+    if reg.kind == "series":
+        entry["vds_max_v"] = max(mx.peak(tt, ww.v("drn") - ww.v("out"), c0, c1) for tt, _, _, ww, c0, c1 in spans)
+        entry["id_max_a"] = max(mx.peak(tt, ww.i("vpass"), c0, c1) for tt, _, _, ww, c0, c1 in spans)
+        # Pass device at switch-on: the drain sees the rising raw supply while the reference charges slowly.
+        sw = start.waves
+        entry["switch_on_dissipation_peak_w"] = float(np.max((sw.v("drn") - sw.v("out")) * sw.i("vpass")))
+        if m["reg_headroom_min_v"] < reg.headroom:
+            warnings.append(f"dropout: the regulator's input-output difference falls to "
+                            f"{m['reg_headroom_min_v']:.3g} V, under the {reg.headroom:g} V it needs")
+    else:
+        ish = [(tt, ww.i("vshunt"), c0, c1) for tt, _, _, ww, c0, c1 in spans]
+        m["shunt_current_min_a"] = min(mx.trough(tt, i, c0, c1) for tt, i, c0, c1 in ish)
+        m["shunt_current_max_a"] = max(mx.peak(tt, i, c0, c1) for tt, i, c0, c1 in ish)
+        entry["current_min_a"] = m["shunt_current_min_a"]
+        entry["current_max_a"] = m["shunt_current_max_a"]
+        low = reg.glow.i_min if reg.glow is not None else 1e-3
+        if m["shunt_current_min_a"] < low:
+            warnings.append(f"dropout: the shunt current falls to {m['shunt_current_min_a'] * 1e3:.3g} mA, under the "
+                            f"{low * 1e3:g} mA it needs to regulate")
+        sw = start.waves
+        entry["switch_on_voltage_max_v"] = float(np.max(sw.v("sh")))
+        entry["struck"] = bool(np.max(sw.i("vshunt")) > 1e-4)
+    parts[name] = entry
 
 
 def _step_figures(design: Design, sc: Circuit, start: Run, m: dict[str, float], warnings: list[str]) -> None:
@@ -513,6 +626,6 @@ def switch_on_deck(result: RunResult) -> str:
     meas = [f".meas tran surge_peak_a_{x.name.lower()} MAX i({x.sense.lower()})" for x in circuit.diodes]
     meas += [f".meas tran cap_peak_v_{c.name.lower()} MAX v({c.plus},{c.minus})" if c.minus != "0"
              else f".meas tran cap_peak_v_{c.name.lower()} MAX v({c.plus})"
-             for c in circuit.capacitors if c.role != "snubber"]
+             for c in circuit.capacitors if c.is_part]
     tran = transient(d, circuit, run.deck_span or run.tstop, safe=run.retried)
     return render(circuit, tran, run.ics, meas, header)

@@ -47,7 +47,7 @@ def discharge(engine: Engine, design: Design, state: dict[str, float], span: flo
     off = replace(design, loads=())
     circuit = build_circuit(off, phase_deg=0.0, vscale=0.0)
     span = span or max(20 * pol.safe_time, 60.0)
-    caps = [c for c in circuit.capacitors if c.role not in ("snubber", "aux")]
+    caps = [c for c in circuit.capacitors if c.is_part]
     ics = {k: v for k, v in state.items() if k in {e.name for e in circuit.state_elements()}}
     tran = Transient(tstop=span, tmax=span / STEPS, reltol=1e-4)
     deck = render(circuit, tran, ics, header=["switch-off: source at zero, load gone"])

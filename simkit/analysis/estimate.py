@@ -143,10 +143,12 @@ def estimate_state(design: Design, circuit: Circuit, vscale: float = 1.0) -> dic
     for ind in circuit.inductors:
         ics[ind.name] = i if ind.role == "choke" else 0.0
     for cap in circuit.capacitors:
-        if cap.role == "snubber":
+        if cap.role in ("snubber", "sense"):
             ics[cap.name] = 0.0
         elif cap.role == "aux":  # the inverter's smoothed output power
             ics[cap.name] = vr * i
+        elif cap.role == "reference" and design.regulator is not None:
+            ics[cap.name] = design.regulator.reference or 0.0
         elif cap.role != "stage":
             ics[cap.name] = node_v.get(cap.plus, vr)
     stage_caps = [c for c in circuit.capacitors if c.role == "stage"]

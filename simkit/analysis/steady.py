@@ -383,7 +383,7 @@ def extrapolate(x0: dict[str, float], x1: dict[str, float], x2: dict[str, float]
     jump is taken only when the two changes point the same way (cosine above 0.95) and
     shrink (0 < rho < 0.995), which is what one slow mode looks like.
     """
-    keys = [c.name for c in circuit.capacitors if c.role != "snubber"] + \
+    keys = [c.name for c in circuit.capacitors if c.role not in ("snubber", "sense")] + \
         [i.name for i in circuit.inductors if i.role == "choke"]
     if not keys:
         return None
@@ -409,7 +409,7 @@ def _state_drift(circuit: Circuit, before: dict[str, float], after: dict[str, fl
     worst = 0.0
     i_scale = max([abs(after[x.name]) for x in circuit.inductors] + [1e-3])
     for cap in circuit.capacitors:
-        if cap.role == "snubber":
+        if cap.role in ("snubber", "sense"):
             continue
         floor = 1e-3 * vpk if cap.role != "aux" else 1e-3
         sc = max(abs(after[cap.name]), floor)

@@ -16,6 +16,7 @@ Without ``mains_tolerance`` the mains corners run at nominal mains and say so.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, replace
 
 from simkit.analysis.discharge import Discharge, discharge
@@ -68,17 +69,21 @@ def run_corners(design: Design, engine: Engine | None = None) -> Corners:
     tol = design.source.mains_tolerance if design.source.kind != "inverter" else None
     hi, lo = (1 + tol, 1 - tol) if tol else (1.0, 1.0)
     names = corner_names(tol)
+    # Corners need no load or line regulation runs, and a corner that never settles (a glow tube that keeps
+    # striking and going out) is cut at 100 periods with a warning.
+    limit = min(design.simulation.max_settle_time or math.inf, 100 / design.source.frequency)
+    design = replace(design, simulation=replace(design.simulation, max_settle_time=limit))
     crest = replace(design.simulation, switch_on_phase=90.0)
     light = replace(design, loads=tuple(lighten(ld) for ld in design.loads))
     heavy_d = replace(design, loads=tuple(heavy(ld) for ld in design.loads), simulation=crest)
     cold = replace(design, loads=())
     res: dict[str, RunResult] = {
-        names["light"]: simulate(light, eng, vscale=hi),
-        names["heavy"]: simulate(heavy_d, eng, vscale=hi),
+        names["light"]: simulate(light, eng, vscale=hi, regulation=False),
+        names["heavy"]: simulate(heavy_d, eng, vscale=hi, regulation=False),
     }
     if tol:
-        res[names["low"]] = simulate(heavy_d, eng, vscale=lo)
-    res[names["cold"]] = simulate(cold, eng, vscale=hi)
+        res[names["low"]] = simulate(heavy_d, eng, vscale=lo, regulation=False)
+    res[names["cold"]] = simulate(cold, eng, vscale=hi, regulation=False)
     charged = res[names["cold"]]
     off = discharge(eng, design, end_state(charged.circuit, charged.steady.final.waves))
     return Corners(res, off, tol)

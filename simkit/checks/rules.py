@@ -210,6 +210,63 @@ def evaluate(design: Design, corners: Corners) -> Findings:
             add("V1", "inverter apparent power", va[0], src.inverter.rated_power, "VA", va[1],
                 f"rated {src.inverter.rated_power:g} W; a capacitor-input load draws more VA than W")
 
+    # --- regulator ----------------------------------------------------------------------------------------------
+    reg = design.regulator
+    if reg is not None:
+        head = _worst(corners, loaded, lambda r: -r.metrics["reg_headroom_min_v"])
+        if head and reg.kind == "series":
+            add("MPASS", "headroom (dropout)", -head[0], reg.headroom, "V", head[1],
+                f"at least {reg.headroom:g} V from input to output to keep regulating (regulator.headroom)",
+                minimum=True)
+        if reg.kind == "series" and reg.device is not None:
+            dev = reg.device
+            diss = _worst(corners, loaded, lambda r: r.parts["MPASS"]["dissipation_peak_w"])
+            on = (any_result.parts["MPASS"]["switch_on_dissipation_peak_w"], cn["on"])
+            if dev.pd and diss:
+                worst = max(diss, on)
+                add("MPASS", "pass device dissipation", worst[0], pol.resistor_power * dev.pd, "W", worst[1],
+                    f"{pol.resistor_power * 100:g} % of PD {dev.pd:g} W at a 25 C case: it needs a heatsink "
+                    f"({dev.source})")
+            vds = _worst(corners, steady, lambda r: r.parts["MPASS"]["vds_max_v"])
+            if dev.vdss and vds:
+                add("MPASS", "drain-source voltage (SOA)", vds[0], pol.diode_voltage * dev.vdss, "V", vds[1],
+                    f"{pol.diode_voltage * 100:g} % of VDSS {dev.vdss:g} V ({dev.source})")
+            idm = _worst(corners, loaded, lambda r: r.parts["MPASS"]["id_max_a"])
+            if dev.id_max and idm:
+                add("MPASS", "drain current (SOA)", idm[0], dev.id_max, "A", idm[1],
+                    f"ID {dev.id_max:g} A ({dev.source})")
+        if reg.kind == "shunt":
+            name = "DZ" if reg.zener is not None else "GLOW"
+            lo = _worst(corners, loaded, lambda r: -r.metrics["shunt_current_min_a"])
+            hi = _worst(corners, steady, lambda r: r.metrics.get("shunt_current_max_a"))
+            if reg.glow is not None:
+                g = reg.glow
+                if lo:
+                    add(name, "shunt current, lowest", -lo[0], g.i_min, "A", lo[1],
+                        f"{g.name} regulates from {g.i_min * 1e3:g} mA ({g.source})", minimum=True)
+                if hi:
+                    add(name, "shunt current, highest", hi[0], g.i_max, "A", hi[1],
+                        f"{g.name} carries at most {g.i_max * 1e3:g} mA ({g.source})")
+                # Before it strikes the tube draws nothing, so the voltage across it is the raw supply less the
+                # loads' drop in the dropping resistor (loads taken at their regulated current).
+                low_corner = cn["low"] if cn["low"] in corners.results else cn["heavy"]
+                r_low = corners.results[low_corner]
+                avail = r_low.metrics["reg_vin_v"] - reg.resistance * r_low.metrics["iout_dc_a"] if reg.resistance \
+                    else 0.0
+                if not r_low.parts[name].get("struck", True):
+                    avail = min(avail, r_low.parts[name]["switch_on_voltage_max_v"])
+                add(name, "strikes at switch-on", avail, g.striking * g.count, "V", low_corner,
+                    f"{g.count} x {g.name} strike at {g.striking:g} V each ({g.source}); the value is the raw supply "
+                    "less the load current's drop in the dropping resistor", minimum=True)
+            elif reg.zener is not None and reg.zener.power:
+                z = reg.zener
+                pz = _worst(corners, steady, lambda r: r.parts["DZ"]["dissipation_w"] / z.count)
+                if pz:
+                    add(name, "zener dissipation (each)", pz[0], pol.resistor_power * z.power, "W", pz[1],
+                        f"{pol.resistor_power * 100:g} % of {z.power:g} W each (design file)")
+            if reg.zener is not None and not reg.zener.power:
+                f.not_checked.append("shunt zener dissipation: no power rating given (zener = { power = ... })")
+
     # --- switch-off ---------------------------------------------------------------------------------------------
     off = corners.off
     for name, t in off.time_to_safe.items():
@@ -225,10 +282,12 @@ def _per_path(design: Design) -> float:
 
 
 def _capacitor_ratings(design: Design, circuit: Any) -> list[tuple[str, PartRating | None, str]]:
-    caps = [c for c in circuit.capacitors if c.role not in ("snubber", "aux")]
+    caps = [c for c in circuit.capacitors if c.is_part]
     out: list[tuple[str, PartRating | None, str]] = []
     filt = iter([s for s in design.filters if s.kind == "c"])
     for c in caps:
+        if c.role == "reference":
+            continue  # the regulator's reference filter: at the reference voltage, no rating key
         if c.role == "stage":
             out.append((c.name, design.rectifier.capacitor_rating, "rectifier.capacitor_rating"))
         else:
@@ -247,4 +306,6 @@ def _resistor_ratings(design: Design, circuit: Any) -> list[tuple[str, PartRatin
             out.append((r.name, design.bleeder.rating if design.bleeder else None))
         elif r.role == "balancing":
             out.append((r.name, design.rectifier.balancing_rating))
+        elif r.name == "RREG" and design.regulator is not None:
+            out.append((r.name, design.regulator.resistor_rating))
     return out

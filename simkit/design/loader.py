@@ -29,21 +29,25 @@ from simkit.design.model import (
     DiodeModel,
     DiodeRatings,
     FilterSection,
+    GlowSpec,
     Inverter,
     Keying,
     KeyState,
     Load,
     PartRating,
+    PassDevice,
     Rectifier,
+    Regulator,
     SimulationOptions,
     Source,
     SpreadOptions,
     Transformer,
     TubeRatings,
     VacuumDiode,
+    Zener,
 )
 from simkit.errors import DesignError
-from simkit.parts import diodes, tubes
+from simkit.parts import diodes, regulators, tubes
 from simkit.units import UnitError, parse_percent, parse_value
 
 MAX_TITLE = 200
@@ -349,6 +353,7 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
     sim = _simulation(rd, data)
     spread = _spread(rd, data)
     checks = _checks(rd, data)
+    regulator = _regulator(rd, data)
 
     # Combinations that cannot be built.
     if rectifier.topology in ("half-wave", "centre-tap", "bridge") and not filters and not loads \
@@ -376,6 +381,7 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
         simulation=sim,
         spread=spread,
         checks=checks,
+        regulator=regulator,
         note=note,
         origin=origin,
     )
@@ -876,6 +882,98 @@ def _bleeder(rd: _Reader, data: Mapping[str, Any]) -> Bleeder | None:
     assert r is not None
     return Bleeder(r=r, tolerance=rd.percent(t, "tolerance", "bleeder"),
                    rating=_rating(rd, t, "rating", "bleeder", "r"))
+
+
+def _regulator(rd: _Reader, data: Mapping[str, Any]) -> Regulator | None:
+    t = rd.table(data, "regulator", "regulator", required=False)
+    if t is None:
+        return None
+    path = "regulator"
+    rd.check_keys(t, schema.REGULATOR, path)
+    kind = rd.choice(t, "kind", path, ("shunt", "series"))
+    if kind == "shunt":
+        rd.refuse(t, ("reference", "reference_current", "filter_r", "filter_c", "gate_resistor", "gate_zener",
+                      "device", "headroom"), path, 'belongs to kind "series"')
+        rd.need(t, "resistance", path, 'the dropping resistor, e.g. resistance = "4.7k"')
+        res = rd.value(t, "resistance", path, "ohm", above=0, maximum=1e9)
+        rr = _rating(rd, t, "resistor_rating", path, "r")
+        if ("zener" in t) == ("tube" in t):
+            raise rd.fail(f"{path}.zener", 'a shunt regulator needs either zener = { voltage = ... } or tube = "OD3"')
+        if "tube" in t:
+            name = rd.text(t, "tube", path, "")
+            part = regulators.glow(name)
+            if part is None:
+                near = difflib.get_close_matches(name.upper(), list(regulators.GLOW), n=1, cutoff=0.4)
+                hint = f"; did you mean {near[0]!r}?" if near else f"; the library has {', '.join(regulators.GLOW)}"
+                raise rd.fail(f"{path}.tube", f"{_show(name)} is not a glow tube of the library{hint}")
+            count = rd.integer(t, "count", path, default=1, minimum=1, maximum=10)
+            g = GlowSpec(part.name, count, part.maintaining, part.striking, part.extinction, part.i_min,
+                         part.i_max, part.resistance, part.source)
+            return Regulator(kind="shunt", resistance=res, resistor_rating=rr, glow=g)
+        rd.refuse(t, ("count",), path, "count of glow tubes; a zener string says count inside zener = { ... }")
+        zen = _zener(rd, t["zener"], f"{path}.zener")
+        return Regulator(kind="shunt", resistance=res, resistor_rating=rr, zener=zen)
+    rd.refuse(t, ("resistance", "resistor_rating", "tube", "count"), path, 'belongs to kind "shunt"')
+    if "reference" not in t and "zener" not in t:
+        raise rd.fail(f"{path}.reference", 'missing key: the reference voltage, e.g. reference = "250"')
+    if "zener" in t:
+        z = _zener(rd, t["zener"], f"{path}.zener")
+        if "reference" in t:
+            raise rd.fail(f"{path}.reference", "give reference or zener = { ... }, not both")
+        ref = z.voltage * z.count
+    else:
+        ref = rd.value(t, "reference", path, "V", above=0, maximum=100e3)
+        assert ref is not None
+        n = max(1, math.ceil(ref / 200.0))  # a string of zeners of up to 200 V each
+        z = Zener(voltage=ref / n, count=n, resistance=ref / n / 20.0)
+    dev = _device(rd, t.get("device", "IRF840"), f"{path}.device")
+
+    def v(key: str, unit: str, default: float, lo: float, hi: float) -> float:
+        out = rd.value(t, key, path, unit, default=default, above=lo, maximum=hi)
+        assert out is not None
+        return out
+
+    return Regulator(kind="series", zener=z, reference=ref, device=dev,
+                     reference_current=v("reference_current", "A", 2e-3, 0, 1.0),
+                     filter_r=v("filter_r", "ohm", 100e3, 0, 1e9), filter_c=v("filter_c", "F", 1e-6, 0, 1.0),
+                     gate_resistor=v("gate_resistor", "ohm", 1e3, 0, 1e7),
+                     gate_zener=v("gate_zener", "V", 15.0, 0, 100),
+                     headroom=v("headroom", "V", 5.0, 0, 1e3))
+
+
+def _zener(rd: _Reader, raw: Any, path: str) -> Zener:
+    if not isinstance(raw, dict):
+        raise rd.fail(path, f'expected {{ voltage = "75", count = 2 }}, got {_show(raw)}')
+    allowed = {"voltage": schema.Key("V", "each zener", required=True), "count": schema.Key("int", "in series"),
+               "resistance": schema.Key("ohm", "dynamic resistance each"), "power": schema.Key("W", "rating each")}
+    rd.check_keys(raw, allowed, path)
+    vz = rd.value(raw, "voltage", path, "V", above=0, maximum=1000)
+    count = rd.integer(raw, "count", path, default=1, minimum=1, maximum=50)
+    assert vz is not None
+    rz = rd.value(raw, "resistance", path, "ohm", default=max(vz / 20.0, 1.0), above=0, maximum=1e5)
+    pw = rd.value(raw, "power", path, "W", above=0, maximum=1e3)
+    assert rz is not None
+    return Zener(voltage=vz, count=count, resistance=rz, power=pw)
+
+
+def _device(rd: _Reader, raw: Any, path: str) -> PassDevice:
+    if isinstance(raw, str):
+        m = regulators.mosfet(raw)
+        if m is None:
+            raise rd.fail(path, f"{_show(raw)} is not a MOSFET of the library ({', '.join(regulators.MOSFETS)}); "
+                          'or give it inline: { vto = "3.5", kp = "2.5" }')
+        return PassDevice(m.name, m.vto, m.kp, m.vdss, m.id_max, m.pd, m.source)
+    if not isinstance(raw, dict):
+        raise rd.fail(path, f'expected a library name or {{ vto = "3.5", kp = "2.5" }}, got {_show(raw)}')
+    allowed = {"vto": schema.Key("V", "threshold", required=True), "kp": schema.Key("", "A/V^2", required=True),
+               "vdss": schema.Key("V", "rating"), "id": schema.Key("A", "rating"), "pd": schema.Key("W", "rating")}
+    rd.check_keys(raw, allowed, path)
+    vto = rd.value(raw, "vto", path, "V", above=0, maximum=20)
+    kp = rd.value(raw, "kp", path, "", above=0, maximum=1e3)
+    assert vto is not None and kp is not None
+    return PassDevice("inline", vto, kp, rd.value(raw, "vdss", path, "V", above=0),
+                      rd.value(raw, "id", path, "A", above=0), rd.value(raw, "pd", path, "W", above=0),
+                      "given in the design file")
 
 
 def _checks(rd: _Reader, data: Mapping[str, Any]) -> CheckPolicy:

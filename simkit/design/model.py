@@ -265,12 +265,67 @@ class Bleeder:
 
 
 @dataclass(frozen=True)
+class Zener:
+    """A zener diode (or a string of ``count`` equal ones)."""
+
+    voltage: float  # V each
+    count: int = 1
+    resistance: float = 10.0  # ohm, dynamic, each
+    power: float | None = None  # W rating each
+
+
+@dataclass(frozen=True)
+class GlowSpec:
+    """Glow-discharge regulator tubes in series (ratings per tube)."""
+
+    name: str
+    count: int
+    maintaining: float  # V
+    striking: float  # V
+    extinction: float  # V
+    i_min: float  # A
+    i_max: float  # A
+    resistance: float  # ohm dynamic
+    source: str
+
+
+@dataclass(frozen=True)
+class PassDevice:
+    name: str
+    vto: float  # V
+    kp: float  # A/V^2
+    vdss: float | None = None  # V
+    id_max: float | None = None  # A
+    pd: float | None = None  # W
+    source: str = ""
+
+
+@dataclass(frozen=True)
+class Regulator:
+    """A shunt or series-pass regulator between the filter and the load."""
+
+    kind: Literal["shunt", "series"]
+    resistance: float | None = None  # ohm: shunt dropping resistor
+    resistor_rating: PartRating | None = None
+    zener: Zener | None = None  # shunt element, or the series reference
+    glow: GlowSpec | None = None  # shunt element
+    reference: float | None = None  # V, series: the reference voltage
+    reference_current: float = 2e-3  # A, series: set-up current of the reference
+    filter_r: float = 100e3  # ohm, series: reference RC filter
+    filter_c: float = 1e-6  # F
+    gate_resistor: float = 1e3  # ohm, series: gate stopper
+    gate_zener: float = 15.0  # V, series: gate-source protection
+    device: PassDevice | None = None  # series
+    headroom: float = 5.0  # V, series: the least input-output difference that keeps regulating
+
+
+@dataclass(frozen=True)
 class CheckPolicy:
     """Derating and safety limits of `simkit check` (defaults: common practice)."""
 
     diode_voltage: float = 0.8  # share of VRRM / PIV a diode may see
     capacitor_voltage: float = 0.9  # share of the rated voltage
-    resistor_power: float = 0.5  # share of the power rating
+    resistor_power: float = 0.5  # share of the power rating (resistors, zeners, the pass device)
     marginal: float = 0.1  # within this share of a limit: "marginal"
     safe_voltage: float = 60.0  # V: every capacitor below this ...
     safe_time: float = 5.0  # s: ... within this time after switch-off (load gone)
@@ -302,6 +357,7 @@ class Design:
     loads: tuple[Load, ...] = ()
     bleeder: Bleeder | None = None
     battery: Battery | None = None
+    regulator: Regulator | None = None
     simulation: SimulationOptions = field(default_factory=SimulationOptions)
     spread: SpreadOptions = field(default_factory=SpreadOptions)
     checks: CheckPolicy = field(default_factory=CheckPolicy)

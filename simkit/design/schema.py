@@ -32,6 +32,7 @@ TOP: dict[str, Key] = {
     "simulation": Key("table", "how the analyses run"),
     "spread": Key("table", "how `simkit spread` draws values within their tolerances"),
     "checks": Key("table", "derating policy and safety limits of `simkit check`"),
+    "regulator": Key("table", "a shunt or series regulator between the filter and the loads"),
 }
 
 SOURCE: dict[str, Key] = {
@@ -173,6 +174,28 @@ BLEEDER: dict[str, Key] = {
     "rating": Key("table", 'power rating, { w = "2" }, for `simkit check`'),
 }
 
+REGULATOR: dict[str, Key] = {
+    "kind": Key("str", '"shunt" (a dropping resistor and a zener string or glow tubes) or "series" (a MOSFET '
+                "follower from a zener reference)", required=True),
+    "resistance": Key("ohm", "shunt: the series dropping resistor"),
+    "resistor_rating": Key("table", 'shunt: power rating of the dropping resistor, { w = "5" }'),
+    "zener": Key("table", 'shunt element, or the series reference: { voltage = "75", count = 2, '
+                 'resistance = "20", power = "5" } (each)'),
+    "tube": Key("str", 'shunt: glow-discharge regulator tube from the library ("OA2", "OB2", "OC3", "OD3")'),
+    "count": Key("int", "shunt: glow tubes in series", default="1"),
+    "reference": Key("V", "series: reference voltage (the output is about this less the gate-source voltage)"),
+    "reference_current": Key("A", "series: current the reference resistor sets up in the reference", default="2m"),
+    "filter_r": Key("ohm", "series: resistor of the RC filter on the reference (slow start, less noise)",
+                    default="100k"),
+    "filter_c": Key("F", "series: capacitor of the reference filter", default="1u"),
+    "gate_resistor": Key("ohm", "series: gate stopper", default="1k"),
+    "gate_zener": Key("V", "series: gate-source protection zener", default="15"),
+    "device": Key("str", 'series: pass MOSFET from the library ("IRF840", "IRF830", "IRFBG20") or inline '
+                  '{ vto = "3.5", kp = "2.5", vdss = "500", id = "8", pd = "125" }', default='"IRF840"'),
+    "headroom": Key("V", "series: input-output difference below which it no longer regulates (dropout)",
+                    default="5"),
+}
+
 CHECKS: dict[str, Key] = {
     "diode_voltage": Key("%", "a diode may see this share of its VRRM (a tube, of its PIV)", default="80%"),
     "capacitor_voltage": Key("%", "a capacitor may see this share of its rated voltage", default="90%"),
@@ -214,4 +237,5 @@ SECTIONS: dict[str, dict[str, Key]] = {
     "simulation": SIMULATION,
     "spread": SPREAD,
     "checks": CHECKS,
+    "regulator": REGULATOR,
 }

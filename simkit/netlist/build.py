@@ -73,6 +73,11 @@ def key_duty(load: Load) -> float:
     return area / d.period
 
 
+def zener_model(name: str, bv: float, rdyn: float) -> str:
+    """A zener as a SPICE diode: breakdown at ``bv``, the dynamic resistance as RS."""
+    return f".model {name} D(is=1e-12 n=1 rs={spice(rdyn)} bv={spice(bv)} ibv=1m tt=0 cjo=0)"
+
+
 def diode_model_line(d: DiodeModel) -> str:
     params = [f"is={spice(d.is_)}", f"n={spice(d.n)}", f"rs={spice(d.rs)}", f"tt={spice(d.tt)}",
               f"cjo={spice(d.cjo)}"]
@@ -364,13 +369,71 @@ class _Builder:
             first = False
         return node
 
+    def regulator(self) -> None:
+        """The regulator between the filter's last node ``raw`` and the output ``out``."""
+        reg = self.d.regulator
+        assert reg is not None
+        self.c.regulator = {"input": "raw", "output": "out"}
+        if reg.kind == "shunt":
+            assert reg.resistance is not None
+            self.c.add(Element("RREG", ("raw", "out"), spice(reg.resistance), comment="shunt dropping resistor"))
+            self.c.resistors.append(ResRef("RREG", "raw", "out", reg.resistance, "regulator"))
+            self.c.add(Element("VSHUNT", ("out", "sh"), "0", comment="senses the shunt current"))
+            self.c.regulator["shunt_sense"] = "VSHUNT"
+            if reg.zener is not None:
+                z = reg.zener
+                self.c.add(Element("DZ", ("0", "sh"), "DZENER", comment=f"{z.count} x {spice(z.voltage)} V zener"))
+                self.c.models.append(zener_model("DZENER", z.voltage * z.count, z.resistance * z.count))
+            else:
+                g = reg.glow
+                assert g is not None
+                n = g.count
+                vt = (g.striking + g.extinction) / 2 * n
+                vh = (g.striking - g.extinction) / 2 * n
+                # The switch watches the tube voltage through 10 us of RC: striking then has a cause
+                # and an effect in time, not an algebraic loop the integrator cannot step over.
+                self.c.add(Element("RGLC", ("sh", "glc"), "10k", comment="strike sensing"))
+                self.c.add(Element("CGLC", ("glc", "0"), "1n", comment="strike sensing", ic=0.0))
+                self.c.capacitors.append(CapRef("CGLC", "glc", "0", "glc", "0", "", 1e-9, "sense"))
+                self.c.add(Element("SGLOW", ("sh", "g1", "glc", "0"), "SWGLOW",
+                                   comment=f"{n} x {g.name}: strikes above {spice(g.striking * n)} V"))
+                expr = f"I=max(v(g1)-{spice(g.maintaining * n)},0)/{spice(g.resistance * n)}"
+                self.c.add(Element("BGLOW", ("g1", "0"), expr, comment="maintaining voltage and dynamic resistance"))
+                self.c.add(Element("RGLOW", ("g1", "0"), "1G", comment="keeps the node defined while unstruck"))
+                self.c.models.append(f".model SWGLOW SW(vt={spice(vt)} vh={spice(vh)} ron=1 roff=1e12)")
+            return
+        z = reg.zener
+        dev = reg.device
+        assert z is not None and dev is not None and reg.reference is not None
+        crest = self.d.source.vpeak * {"doubler": 2, "cascade": 2 * self.d.rectifier.stages}.get(
+            self.d.rectifier.topology, 1)
+        r_ref = max((0.9 * crest - reg.reference) / reg.reference_current, 1e3)
+        self.c.regulator["reference_resistor"] = f"{r_ref:.6g}"
+        self.c.add(Element("RREF", ("raw", "ref1"), spice(r_ref), comment="feeds the reference"))
+        self.c.resistors.append(ResRef("RREF", "raw", "ref1", r_ref, "regulator"))
+        self.c.add(Element("DREF", ("0", "ref1"), "DZREF", comment=f"reference, {spice(reg.reference)} V"))
+        self.c.models.append(zener_model("DZREF", reg.reference, z.resistance * z.count))
+        self.c.add(Element("RFREF", ("ref1", "ref2"), spice(reg.filter_r), comment="reference filter"))
+        self.c.resistors.append(ResRef("RFREF", "ref1", "ref2", reg.filter_r, "regulator"))
+        name = self.capacitor("ref2", "0", reg.filter_c, 0.0, "reference")
+        self.c.regulator["filter_capacitor"] = name
+        self.c.add(Element("RGATE", ("ref2", "gate"), spice(reg.gate_resistor), comment="gate stopper"))
+        self.c.add(Element("VPASS", ("raw", "drn"), "0", comment="senses the pass device current"))
+        self.c.add(Element("MPASS", ("drn", "gate", "out", "out"), "MPASSM", comment=f"pass device {dev.name}"))
+        self.c.models.append(f".model MPASSM NMOS(level=1 vto={spice(dev.vto)} kp={spice(dev.kp)})")
+        self.c.add(Element("DGS", ("out", "gate"), "DZGS",
+                           comment=f"gate-source protection, {spice(reg.gate_zener)} V"))
+        self.c.models.append(zener_model("DZGS", reg.gate_zener, 5.0))
+        self.c.regulator["pass_sense"] = "VPASS"
+
     def loads(self) -> None:
         for idx, ld in enumerate(self.d.loads):
             node = "out" if ld.at is None else self.c.section_nodes[ld.at]
             self.load(idx, ld, node)
+        top = "raw" if self.d.regulator is not None else "out"  # a bleeder belongs on the capacitors
         if self.d.bleeder is not None:
-            self.c.add(Element("RBLEED", ("out", "0"), spice(self.d.bleeder.r), comment="bleeder"))
-            self.c.resistors.append(ResRef("RBLEED", "out", "0", self.d.bleeder.r, "bleeder"))
+            self.c.add(Element("RBLEED", (top, "0"), spice(self.d.bleeder.r), comment="bleeder"))
+            self.c.resistors.append(ResRef("RBLEED", top, "0", self.d.bleeder.r, "bleeder"))
         elif not self.d.loads:
             # Nothing across the output (an idle supply, or the load gone): 1 G keeps the node defined.
             self.c.add(Element("RTOUT", ("out", "0"), spice(1e9), comment="keeps an unloaded output defined"))
@@ -455,13 +518,16 @@ def build_circuit(design: Design, phase_deg: float = 0.0, vscale: float = 1.0, m
     b.rectifier()
     last = b.filters()
     circuit = b.c
-    _rename(circuit, last, "out")
+    supply = "raw" if design.regulator is not None else "out"
+    _rename(circuit, last, supply)
+    if design.regulator is not None:
+        b.regulator()
     b.loads()
     b.battery()
     if not design.rectifier.diode.is_vacuum:
         circuit.models.append(diode_model_line(design.rectifier.diode))
     circuit.output = "out"
-    circuit.rectified = "out" if last == "rect" else "rect"
+    circuit.rectified = supply if last == "rect" else "rect"
     return circuit
 
 

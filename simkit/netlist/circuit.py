@@ -42,6 +42,10 @@ class DiodeRef:
     cathode: str
 
 
+#: Capacitors simkit adds: RC snubbers, a model's internal state ("aux"), sensing delays ("sense").
+HELPER_ROLES = ("snubber", "aux", "sense")
+
+
 @dataclass(frozen=True)
 class CapRef:
     name: str  # C1
@@ -51,7 +55,12 @@ class CapRef:
     inner_minus: str
     sense: str  # VC1: current into the plus terminal
     value: float  # F
-    role: str  # "reservoir", "stage", "filter", "snubber", "aux" (a model's internal state)
+    role: str  # "reservoir", "stage", "filter", "reference", or a helper role (HELPER_ROLES)
+
+    @property
+    def is_part(self) -> bool:
+        """A capacitor of the design (not one simkit adds for numerics or as a model's state)."""
+        return self.role not in HELPER_ROLES
 
 
 @dataclass(frozen=True)
@@ -109,6 +118,7 @@ class Circuit:
     mode: str = "steady"  # which time functions are live: see netlist.build
     battery_nodes: dict[str, str] = field(default_factory=dict)  # "vt", "ib", "pin", "pout" when modelled
     section_nodes: list[str] = field(default_factory=list)  # node after each filter section
+    regulator: dict[str, str] = field(default_factory=dict)  # its nodes and sense sources, when there is one
 
     @property
     def load_sense(self) -> str | None:

@@ -1,0 +1,81 @@
+"""Regulator parts: glow-discharge voltage-regulator tubes and high-voltage MOSFETs for series pass.
+
+Tags as in REFERENCES.md: [V] read in the datasheet, [S] secondary source, [M] from memory,
+unverified (REFERENCES.md has no regulator data; check the primary sheets before relying on
+a tight margin: RCA and GE tube manuals for the glow tubes, the makers' sheets for the
+MOSFETs).
+
+A glow tube maintains about its ``maintaining`` voltage plus ``resistance`` times its
+current while it conducts between ``i_min`` and ``i_max``; it conducts only once the voltage
+across it has exceeded ``striking`` and goes out below about ``extinction``.
+
+A MOSFET is modelled by the square law above threshold, i_d = kp/2 (v_gs - vto)^2 (SPICE
+level 1, channel-length modulation neglected), with kp fitted to the datasheet's forward
+transconductance: kp = g_fs^2 / (2 i_d) at its test current.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class GlowTube:
+    name: str
+    maintaining: float  # V at mid current
+    striking: float  # V
+    i_min: float  # A
+    i_max: float  # A
+    resistance: float  # ohm, dynamic (regulation over the current range / range)
+    source: str
+
+    @property
+    def extinction(self) -> float:
+        """Voltage below which the discharge goes out, V (just under the maintaining voltage)."""
+        return self.maintaining - 3.0
+
+
+@dataclass(frozen=True)
+class Mosfet:
+    name: str
+    vto: float  # V, threshold
+    kp: float  # A/V^2
+    vdss: float  # V
+    id_max: float  # A continuous (case 25 C)
+    pd: float  # W (case 25 C; needs a heatsink to get near it)
+    source: str
+
+
+GLOW: dict[str, GlowTube] = {
+    t.name: t
+    for t in (
+        GlowTube("OA2", 150.0, 185.0, 5e-3, 30e-3, 6.0 / 25e-3, "RCA receiving tube manual, OA2: 150 V, starting "
+                 "185 V, 5-30 mA, regulation about 6 V over that range [M]"),
+        GlowTube("OB2", 108.0, 133.0, 5e-3, 30e-3, 1.0 / 25e-3, "RCA receiving tube manual, OB2: 108 V, starting "
+                 "133 V, 5-30 mA, regulation about 1 V [M]"),
+        GlowTube("OC3", 105.0, 115.0, 5e-3, 40e-3, 4.0 / 35e-3, "RCA receiving tube manual, OC3/VR105: 105 V, "
+                 "starting 115 V, 5-40 mA, regulation about 4 V [M]"),
+        GlowTube("OD3", 150.0, 160.0, 5e-3, 40e-3, 5.5 / 35e-3, "RCA receiving tube manual, OD3/VR150: 150 V, "
+                 "starting 160 V, 5-40 mA, regulation about 5.5 V [M]"),
+    )
+}
+
+MOSFETS: dict[str, Mosfet] = {
+    m.name: m
+    for m in (
+        Mosfet("IRF840", 3.5, 2.5, 500.0, 8.0, 125.0, "Vishay/IR IRF840: VDSS 500 V, ID 8 A, PD 125 W, "
+               "VGS(th) 2-4 V, gfs 4.9 S at 4.8 A [M]"),
+        Mosfet("IRF830", 3.5, 1.6, 500.0, 4.5, 74.0, "Vishay/IR IRF830: VDSS 500 V, ID 4.5 A, PD 74 W, "
+               "VGS(th) 2-4 V, gfs 2.5 S at 2 A [M]"),
+        Mosfet("IRFBG20", 3.5, 0.5, 1000.0, 1.4, 54.0, "Vishay/IR IRFBG20: VDSS 1000 V, ID 1.4 A, PD 54 W, "
+               "VGS(th) 2-4 V, gfs about 0.7 S at 0.8 A [M]"),
+    )
+}
+
+
+def glow(name: str) -> GlowTube | None:
+    return GLOW.get(name.strip().upper())
+
+
+def mosfet(name: str) -> Mosfet | None:
+    return MOSFETS.get(name.strip().upper())
