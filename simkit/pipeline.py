@@ -177,7 +177,7 @@ def _regulation(eng: Engine, design: Design, vscale: float, result: RunResult) -
     m["line_regulation_pct"] = 100 * (out_hi - out_lo) / v_full if v_full else math.nan
     m["line_input_change_pct"] = 100 * (in_hi - in_lo) / m["reg_vin_v"] if m["reg_vin_v"] else math.nan
     if out_lo < 0.98 * v_full:
-        result.warnings.append(f"at {100 * tol:g} % low mains the regulated output falls to {out_lo:.4g} V "
+        result.warnings.append(f"with the supply {100 * tol:g} % low the regulated output falls to {out_lo:.4g} V "
                                "(out of regulation)")
 
 
