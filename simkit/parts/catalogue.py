@@ -5,7 +5,7 @@ from __future__ import annotations
 import difflib
 
 from simkit.errors import UsageError
-from simkit.parts import diodes, tubes
+from simkit.parts import diodes, regulators, tubes
 from simkit.units import eng
 
 
@@ -29,6 +29,15 @@ def listing() -> str:
 
         lines.append(f"  {t.name:<8} {show(r.piv, 'V'):>7} {show(r.peak_current, 'A'):>7} "
                      f"{show(r.dc_current, 'A'):>7} {show(r.max_input_capacitance, 'F'):>7}  {t.description}")
+    lines.append("")
+    lines.append('Glow-discharge regulator tubes ([regulator] kind = "shunt", tube = "NAME"):')
+    for g in regulators.GLOW.values():
+        lines.append(f"  {g.name:<8} {g.maintaining:g} V, strikes at {g.striking:g} V, "
+                     f"{g.i_min * 1e3:g}-{g.i_max * 1e3:g} mA, {g.resistance:.3g} ohm")
+    lines.append("")
+    lines.append('Pass MOSFETs ([regulator] kind = "series", device = "NAME"):')
+    for m in regulators.MOSFETS.values():
+        lines.append(f"  {m.name:<8} {m.vdss:g} V, {m.id_max:g} A, {m.pd:g} W, threshold {m.vto:g} V")
     lines.append("Details and sources: simkit parts NAME")
     return "\n".join(lines) + "\n"
 
@@ -39,6 +48,15 @@ def describe(name: str) -> str:
         t = tubes.lookup(name)
         if t is not None:
             return _describe_tube(t)
+        g = regulators.glow(name)
+        if g is not None:
+            return (f"{g.name}: glow-discharge regulator tube\n  maintaining {g.maintaining:g} V, striking "
+                    f"{g.striking:g} V, {g.i_min * 1e3:g}-{g.i_max * 1e3:g} mA, dynamic {g.resistance:.3g} ohm\n"
+                    f"  from: {g.source}\n")
+        m = regulators.mosfet(name)
+        if m is not None:
+            return (f"{m.name}: N-channel MOSFET for series pass\n  VDSS {m.vdss:g} V, ID {m.id_max:g} A, PD {m.pd:g} W "
+                    f"(25 C case), model vto {m.vto:g} V, kp {m.kp:g} A/V^2\n  from: {m.source}\n")
         known = {**{k: v.name for k, v in diodes.DIODES.items()}, **{k: v.name for k, v in tubes.TUBES.items()}}
         near = difflib.get_close_matches(name.upper(), list(known), n=1, cutoff=0.5)
         hint = f"; did you mean {known[near[0]]}?" if near else ""
