@@ -55,8 +55,8 @@ def describe(name: str) -> str:
                     f"  from: {g.source}\n")
         m = regulators.mosfet(name)
         if m is not None:
-            return (f"{m.name}: N-channel MOSFET for series pass\n  VDSS {m.vdss:g} V, ID {m.id_max:g} A, PD {m.pd:g} W "
-                    f"(25 C case), model vto {m.vto:g} V, kp {m.kp:g} A/V^2\n  from: {m.source}\n")
+            return (f"{m.name}: N-channel MOSFET for series pass\n  VDSS {m.vdss:g} V, ID {m.id_max:g} A, "
+                    f"PD {m.pd:g} W (25 C case), model vto {m.vto:g} V, kp {m.kp:g} A/V^2\n  from: {m.source}\n")
         known = {**{k: v.name for k, v in diodes.DIODES.items()}, **{k: v.name for k, v in tubes.TUBES.items()}}
         near = difflib.get_close_matches(name.upper(), list(known), n=1, cutoff=0.5)
         hint = f"; did you mean {known[near[0]]}?" if near else ""
