@@ -25,7 +25,7 @@ demo: setup
 
 test: setup
 	$(BIN)/ruff check simkit tests bench
-	$(BIN)/python -m pytest -q --ngspice required
+	@bash scripts/ensure-chromium.sh && $(BIN)/python -m pytest -q --ngspice required
 
 lint: setup
 	$(BIN)/ruff check simkit tests bench

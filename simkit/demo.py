@@ -9,6 +9,7 @@ from pathlib import Path
 
 from simkit.design.loader import load_design
 from simkit.pipeline import simulate
+from simkit.report.design_report import report_files, run_checks, write_report
 from simkit.report.outputs import OutputDir
 from simkit.report.text import CAUTIONS, show
 
@@ -22,16 +23,42 @@ RESULTS_README = """\
 Written by `simkit demo` (and `make demo`); regenerate rather than edit.  Every example
 design here is invented for demonstration, not a measured build.
 
-One folder per shipped example design:
+One folder per shipped example design, named after its file in `simkit/examples/`:
+
+```
+results/
+  README.md                        this file
+  <example>/
+    report.html                    the design report: open it in a browser (works offline)
+    report.md                      the same report in Markdown, pictures beside it
+    schematic.png  schematic.svg   the schematic drawn from the design
+    output-steady.png/.svg         output voltage over the last periods in steady state
+    diode-currents.png/.svg        current pulses in each rectifier diode
+    switch-on-voltage.png/.svg     output voltage after switch-on, capacitors empty
+    switch-on-surge.png/.svg       diode currents in the first periods after switch-on
+    deck.cir                       the steady-state SPICE deck (`simkit netlist`)
+    design.toml                    the example design file, as shipped in the package
+    result.json                    `simkit run --json`: inputs, figures, per-part figures, warnings
+    waveforms.png                  one overview figure (as `simkit run --out` writes it)
+```
 
 | file | what it is |
 |---|---|
-| `design.toml` | the example design file, as shipped inside the package |
-| `result.json` | `simkit run --json` output: inputs, figures (`metrics`), per-part figures, warnings |
-| `deck.cir` | the steady-state SPICE deck (`simkit netlist`), runnable with `ngspice -b deck.cir` |
-| `waveforms.png` | output voltage and diode currents over the last periods, and the switch-on surge |
+| `report.html` | self-contained: style and pictures are inside the file; it links the PNG and SVG files too |
+| `report.md` | for build notes and wikis: links `NAME.png` (and `NAME.svg` for print) beside it |
+| `*.png` / `*.svg` | every picture in both formats: PNG for documents and screens, SVG for print |
+| `deck.cir` | runnable as it is: `ngspice -b deck.cir` prints the figures as `.meas` results |
+| `result.json` | the figures of SPEC section 3, keyed as `simkit run --json` prints them |
+
+File names are fixed, so documents can link to them, and running `simkit demo` again
+writes the same files.  `simkit report DESIGN --out DIR` writes the same report for your
+own design.  The examples' decks are also kept as golden files in `netlists/` (`make
+netlists`), where a test checks that they are current.
 
 `.simkit-manifest.json` lists the files simkit wrote, so it never overwrites anything else.
+
+HIGH VOLTAGE: these supplies can kill.  Every report ends with the cautions: stored
+charge, bleeders, insulation, fusing, the one hand rule, and your local electrical codes.
 """
 
 
@@ -48,7 +75,7 @@ def run_demo(out: Path, force: bool = False, echo: Callable[[str], None] = print
     folders = {f: OutputDir(out / f.stem, force=force) for f in files}
     top.check(names)
     for folder in folders.values():
-        folder.check(["design.toml", "result.json", "deck.cir", "waveforms.png"])
+        folder.check(["design.toml", "result.json", "deck.cir", "waveforms.png", *report_files()])
     from simkit.report.plots import run_figure_bytes
 
     docs = []
@@ -62,6 +89,8 @@ def run_demo(out: Path, force: bool = False, echo: Callable[[str], None] = print
         folder.write("result.json", json.dumps(doc, indent=2) + "\n")
         folder.write("deck.cir", result.deck)
         folder.write("waveforms.png", run_figure_bytes(result))
+        checks, check_error = run_checks(design)
+        write_report(result, folder, f.read_text("utf-8"), f.name, checks=checks, check_error=check_error)
         echo(f"{design.title}\n  -> {folder.path}/")
         for key in SUMMARY:
             echo(f"     {key:<16} {show(key, result.metrics[key]):>12}")

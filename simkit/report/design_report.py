@@ -1,0 +1,560 @@
+"""``simkit report``: one design's results as a document: schematic, inputs, figures, parts,
+verdicts when ratings are checked, waveform plots, cautions, and the deck as an appendix.
+
+Files (stable names, so build notes and articles can link to them): ``report.md``,
+``report.html`` (self-contained), ``deck.cir``, and for each picture ``NAME.png`` and
+``NAME.svg``: ``schematic``, ``output-steady``, ``diode-currents``, ``switch-on-voltage``,
+``switch-on-surge``; ``keyed`` when the design has a keyed load and the run carries its
+keyed run, ``start-up`` when the design has heater warm-ups or load steps.
+
+Sections that depend on other capabilities appear when their data is there:
+
+- verdicts: a :class:`simkit.checks.CheckReport` passed as ``checks`` (``simkit report``
+  and ``simkit demo`` run the checks), or ``result.extra["verdicts"]``, a list of dicts
+  with the keys of ``simkit check --json`` (part, rule, value, limit, margin, verdict,
+  corner, unit, basis);
+- keyed behaviour: ``result.keyed`` (or ``result.extra["keyed"]``), a run with ``.waves``
+  or ``.run.waves`` (engine Waveforms) of the keyed load over some key cycles;
+- stepped loads and warm-ups: ``design.has_timeline``, plotted from the switch-on run.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from simkit.report.document import Document
+from simkit.report.outputs import OutputDir
+from simkit.report.text import show, unit_of
+from simkit.units import eng
+
+if TYPE_CHECKING:
+    from simkit.pipeline import RunResult
+
+#: Picture file stems, in the order the report shows them.
+IMAGES: tuple[str, ...] = ("schematic", "output-steady", "diode-currents", "switch-on-voltage", "switch-on-surge",
+                           "keyed", "start-up")
+#: Pictures only some designs have (a keyed load; warm-ups or load steps).
+OPTIONAL_IMAGES: tuple[str, ...] = ("keyed", "start-up")
+#: Section headings every design report has (the verdict and keyed sections come on top when their data exists).
+SECTIONS: tuple[str, ...] = ("Summary", "Schematic", "Inputs", "Figures", "Parts", "Waveforms",
+                             "High-voltage cautions", "Appendix: the SPICE deck")
+
+#: Helper elements simkit adds for the numerics, by name prefix: what they are.
+HELPER_NOTES: tuple[tuple[str, str], ...] = (
+    ("RT", "10 MΩ ties from floating winding terminals to the return"),
+    ("CSW", "snubber across a winding with leakage inductance"),
+    ("RSW", "snubber across a winding with leakage inductance"),
+    ("CSR", "snubber at the input of a choke-input filter"),
+    ("RSR", "snubber at the input of a choke-input filter"),
+    ("VD", "0 V current senses of the diodes"),
+    ("VC", "0 V current senses of the capacitors"),
+    ("VLOAD", "0 V current sense of the load"),
+    ("RESR", "capacitor ESR (shown in the capacitor's label)"),
+    ("RDCR", "choke winding resistance (shown in the choke's label)"),
+)
+
+#: Column headings for per-part figures.
+PART_HEADERS: dict[str, str] = {
+    "value_f": "value", "value_h": "value", "value_ohm": "value", "vrms_v": "open-circuit RMS",
+    "peak_a": "peak current", "avg_a": "mean current", "rms_a": "RMS current", "dc_a": "DC current",
+    "piv_v": "peak reverse voltage", "surge_peak_a": "switch-on peak current", "surge_i2t_a2s": "switch-on I²t",
+    "switch_on_piv_v": "switch-on reverse voltage", "peak_v": "peak voltage", "dc_v": "DC voltage",
+    "ripple_pp_v": "ripple p-p", "ripple_rms_a": "ripple current (RMS)", "switch_on_peak_v": "switch-on peak voltage",
+    "esr_dissipation_w": "ESR dissipation", "switch_on_peak_a": "switch-on peak current",
+    "dcr_dissipation_w": "DCR dissipation", "dissipation_w": "dissipation", "apparent_power_va": "apparent power",
+    "node": "at node",
+}
+
+#: Groups of the parts table: heading, and the roles that belong to it.
+PART_GROUPS: tuple[tuple[str, tuple[str, ...]], ...] = (
+    ("Winding", ("winding", "inverter output", "*output", "winding resistance", "winding leakage inductance")),
+    ("Rectifier diodes", ("rectifier diode",)),
+    ("Capacitors", ("stage capacitor", "reservoir capacitor", "filter capacitor")),
+    ("Chokes and resistors", ("choke", "filter resistor")),
+    ("Load and bleeder", ("load", "*load", "bleeder")),  # "*load": any role ending in " load"
+)
+
+
+def is_invented(result: RunResult) -> bool:
+    """True when the design says it is an invented example (title or note)."""
+    d = result.design
+    return "invented" in d.title.lower() or "invented" in d.note.lower()
+
+
+def report_files() -> list[str]:
+    """The files every design report writes (``keyed`` only when there is a keyed run)."""
+    names = ["report.md", "report.html", "deck.cir"]
+    for stem in IMAGES:
+        if stem in OPTIONAL_IMAGES:
+            continue
+        names += [f"{stem}.png", f"{stem}.svg"]
+    return names
+
+
+def build_report(result: RunResult, design_text: str | None = None, source_name: str = "",
+                 overrides: tuple[str, ...] | list[str] = (), checks: Any = None, check_error: str = "") -> Document:
+    """The report of one run as a :class:`Document` (nothing written yet).
+
+    Parameters
+    ----------
+    result : RunResult
+        From :func:`simkit.pipeline.simulate`.
+    design_text : str, optional
+        The design file as written, shown in an appendix.
+    source_name : str
+        The design file's name, for the subtitle.
+    overrides : sequence of str
+        ``--set`` overrides applied on top of the file (listed with it).
+    checks : simkit.checks.CheckReport, optional
+        The design's stress checks (:func:`run_checks`): adds the Verdicts section.
+    check_error : str
+        Why the checks could not run, shown as a caution instead.
+    """
+    from simkit.report import plots
+    from simkit.report.schematic import draw_schematic
+
+    d = result.design
+    c = result.circuit
+    doc = Document(d.title, subtitle=f"Design report by simkit{' for ' + source_name if source_name else ''}: "
+                                     f"{d.rectifier.topology} rectifier, {len(d.filters)} filter "
+                                     f"section{'s' if len(d.filters) != 1 else ''}")
+    if is_invented(result):
+        doc.note("**Invented example.** This design is made up for demonstration; its part values are "
+                 "plausible, not taken from a real build or measured.")
+
+    doc.heading("Summary")
+    doc.paragraph(_summary(result))
+    if d.note:
+        doc.paragraph(f"Note from the design file: {d.note}", markup=False)
+    for w in result.warnings:
+        doc.note(w, kind="caution")
+
+    doc.heading("Schematic")
+    sch = draw_schematic(d, c)
+    doc.image("schematic", sch.png, sch.svg,
+              f"Schematic of the design as simulated, from the winding (left) to the output terminals (right); "
+              f"{len(sch.drawn)} parts", wide=True)
+    doc.paragraph(_schematic_text(result, sch.drawn))
+    helpers = _helpers_present(result)
+    if helpers:
+        doc.paragraph("Not drawn, because simkit adds them to the deck for the numerics and they are not parts to "
+                      "buy: " + "; ".join(f"{desc} ({', '.join(f'`{n}`' for n in names)})"
+                                          for desc, names in helpers) + ".")
+    if sch.not_drawn:
+        doc.note("This version of the schematic cannot draw: " + ", ".join(f"`{n}`" for n in sch.not_drawn)
+                 + "; see the deck in the appendix.", kind="caution")
+
+    doc.heading("Inputs")
+    doc.paragraph("The design as simulated, every value resolved to SI and written in engineering notation; "
+                  "keys as `--set` spells them.")
+    doc.table(["key", "value", "meaning"], _input_rows(result), align="lll", markup=False)
+
+    doc.heading("Figures")
+    doc.paragraph(f"Steady-state figures over the last {_periods(result)} whole periods after the output "
+                  "settled; switch-on figures from a separate run that starts with every capacitor empty.")
+    doc.table(["figure", "value", "meaning"], _figure_rows(result), align="lrl", markup=True)
+
+    doc.heading("Parts")
+    doc.paragraph("Per part, in steady state unless the heading says switch-on. Names as in the schematic.")
+    for title, headers, rows, align in _part_tables(result):
+        doc.heading(title, 3)
+        doc.table(headers, rows, align=align)
+
+    verdicts = _verdicts(result, checks)
+    if verdicts:
+        doc.heading("Verdicts")
+        doc.paragraph("Each stress or safety rule checked against the part's rating at the corner where it binds "
+                      "(as `simkit check` does): `pass`, `marginal` or `fail`; the margin is the headroom as a "
+                      "share of the limit.")
+        bases: list[str] = []
+        rows = [_verdict_row(v, bases) for v in verdicts]
+        doc.table(["part", "rule", "value", "limit", "margin", "verdict", "corner", "limit from"], rows,
+                  align="llrrrclc", markup=True)
+        if bases:
+            doc.paragraph("Where each limit comes from:")
+            doc.bullets([f"[{k + 1}] {b}" for k, b in enumerate(bases)], markup=False)
+        if checks is not None:
+            _check_summary(doc, checks)
+    elif check_error:
+        doc.note(f"The stress checks could not be completed: {check_error}", kind="caution")
+
+    doc.heading("Waveforms")
+    png, svg = plots.output_steady_figure(result)
+    where = "output node and the rectifier node" if c.rectified != c.output else "output node"
+    doc.image("output-steady", png, svg, f"Output voltage over the last {_periods(result)} periods in steady "
+              f"state, at the {where}, with the mean dashed")
+    png, svg = plots.diode_currents_figure(result)
+    doc.image("diode-currents", png, svg, "Current pulses in each rectifier diode in steady state, anode to "
+              "cathode, all on one scale")
+    png, svg = plots.switch_on_voltage_figure(result)
+    doc.image("switch-on-voltage", png, svg, "Output voltage after switch-on with every capacitor empty, against "
+              "the steady-state mean")
+    png, svg = plots.switch_on_current_figure(result)
+    doc.image("switch-on-surge", png, svg, "Diode currents during the first periods after switch-on: the surge "
+              "the diodes and the fuse must take")
+    keyed = _extra(result, "keyed")
+    keyed_waves = _waves_of(keyed)
+    if keyed_waves is not None:
+        doc.heading("Keyed load", 3)
+        cycle = getattr(keyed, "cycle", None)
+        doc.paragraph("The load keyed as the design says, after the keying settled"
+                      + (f" (keying cycle {eng(cycle, 's')})" if cycle else "") + ": output voltage, and the "
+                      "current each load draws. " + _keyed_note(result))
+        png, svg = plots.run_timeline_figure(result, keyed_waves, "Keyed load")
+        doc.image("keyed", png, svg, "Output voltage and load current while the load is keyed")
+    if getattr(d, "has_timeline", False):
+        doc.heading("Start-up timeline", 3)
+        doc.paragraph("From switch-on with every capacitor empty, with the heater warm-ups and load steps of the "
+                      "design: output voltage, and the current each load draws. " + _steps_note(result))
+        png, svg = plots.run_timeline_figure(result, result.start.waves, "Start-up")
+        doc.image("start-up", png, svg, "Output voltage and load current from switch-on, with warm-ups and steps")
+
+    doc.cautions()
+
+    doc.heading("Appendix: the SPICE deck")
+    deck = result.deck
+    doc.paragraph("The steady-state deck as `simkit netlist` prints it (also in `deck.cir` beside this report): "
+                  "runnable with `ngspice -b deck.cir`, its `.meas` lines print the figures above.")
+    doc.attach("deck.cir", deck)
+    doc.code(deck, "spice")
+    if design_text is not None:
+        doc.heading("Appendix: the design file")
+        if overrides:
+            doc.paragraph("As written in the file; the run above changed it with "
+                          + ", ".join(f"`--set {o}`" for o in overrides) + " (the Inputs table shows the values used).")
+        doc.code(design_text, "toml")
+    return doc
+
+
+def write_report(result: RunResult, out: OutputDir, design_text: str | None = None, source_name: str = "",
+                 overrides: tuple[str, ...] | list[str] = (), checks: Any = None, check_error: str = "") -> list[str]:
+    """Build and write the report of one run; returns the file names written."""
+    return build_report(result, design_text, source_name, overrides, checks, check_error).write(out)
+
+
+def run_checks(design: Any) -> tuple[Any, str]:
+    """The design's stress checks (``simkit check``), or None and why they could not run."""
+    from simkit.checks import check_design
+    from simkit.errors import SimkitError
+
+    try:
+        return check_design(design), ""
+    except SimkitError as exc:
+        return None, str(exc)
+
+
+# -- pieces ----------------------------------------------------------------------------------
+
+
+def _periods(result: RunResult) -> int:
+    t0, t1 = result.window
+    return round((t1 - t0) / result.circuit.period)
+
+
+def _summary(result: RunResult) -> str:
+    m = result.metrics
+    d = result.design
+    parts = [
+        f"**Output** {eng(m['vout_dc_v'], 'V')} DC, {eng(m['ripple_pp_v'], 'V')} ripple peak to peak, "
+        f"{eng(m['iout_dc_a'], 'A')} into the load.",
+        f"**Diodes** up to {eng(m['diode_peak_a'], 'A')} peak and {eng(m['diode_avg_a'], 'A')} mean each, "
+        f"{eng(m['diode_piv_v'], 'V')} peak reverse voltage; {eng(m['surge_peak_a'], 'A')} at switch-on.",
+        f"**Capacitors** see up to {eng(m['cap_peak_v'], 'V')}, switch-on included.",
+        f"**Winding** {eng(d.source.vrms, 'V')} RMS open circuit at {eng(d.source.frequency, 'Hz')}, delivering "
+        f"{eng(m['source_rms_a'], 'A')} RMS ({eng(m['source_va'], 'VA')}).",
+    ]
+    return " ".join(parts)
+
+
+def _schematic_text(result: RunResult, drawn: list[str]) -> str:
+    """How to read the schematic, naming only what this one has."""
+    src = result.design.source
+    what = "the inverter's output" if getattr(src, "kind", "sine") == "inverter" else "the winding's open-circuit EMF"
+    two = " (`V2` the second half, in antiphase)" if "V2" in drawn else ""
+    parts = [f"`V1` is {what}{two}"]
+    if "RW1" in drawn:
+        parts.append("`RW1` its series resistance (`source.resistance`)")
+    if "LW1" in drawn:
+        parts.append("`LW1` its leakage inductance (`source.inductance`)")
+    return ("Every part carries its name, as in the deck and the tables below, and its value. " + ", ".join(parts)
+            + ". Capacitor ESR and choke DCR are part of their label; a capacitor's `+` marks the side that is "
+            "higher in steady state. Small grey names are the deck's node names; node `0` is the return, the "
+            "negative output.")
+
+
+def _helpers_present(result: RunResult) -> list[tuple[str, list[str]]]:
+    names = [e.name for e in result.circuit.elements]
+    grouped: dict[str, list[str]] = {}
+    for n in names:
+        for prefix, desc in HELPER_NOTES:
+            if n.startswith(prefix) and not (prefix == "VC" and n.startswith("VCC")):
+                grouped.setdefault(desc, []).append(n)
+                break
+    return list(grouped.items())
+
+
+_UNIT_FOR_SCHEMA = {"V": "V", "A": "A", "ohm": "Ω", "F": "F", "H": "H", "Hz": "Hz", "s": "s", "W": "W"}
+
+
+def _format(value: Any, unit: str) -> str:
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        if unit in _UNIT_FOR_SCHEMA:
+            return eng(float(value), _UNIT_FOR_SCHEMA[unit])
+        if unit == "%":
+            return f"{float(value) * 100:g} %"
+        if unit == "deg":
+            return f"{float(value):g}°"
+        return f"{value:g}" if isinstance(value, float) else str(value)
+    return str(value)
+
+
+def _key(section: str, key: str) -> Any:
+    from simkit.design.schema import SECTIONS as SCHEMA
+
+    return SCHEMA.get(section, {}).get(key)
+
+
+def _input_rows(result: RunResult) -> list[list[str]]:
+    """The resolved design as (key, value, meaning) rows, in the design file's spelling."""
+    from simkit.design.loader import design_to_inputs
+
+    inputs = design_to_inputs(result.design)
+    rows: list[list[str]] = []
+    for section, body in inputs.items():
+        if section in ("title", "note", "origin") or body is None:
+            continue
+        if section == "filters" and isinstance(body, (list, tuple)):
+            for k, sec in enumerate(body):
+                kind = sec.get("kind")
+                spec = _key("filter", kind)
+                rows.append([f"filter.{k}.{kind}", _format(sec.get("value"), spec.unit if spec else ""),
+                             spec.doc if spec else ""])
+                for extra in ("esr", "dcr", "tolerance"):
+                    v = sec.get(extra)
+                    if v:
+                        spec = _key("filter", extra)
+                        rows.append([f"filter.{k}.{extra}", _format(v, spec.unit if spec else ""),
+                                     spec.doc if spec else ""])
+            continue
+        if isinstance(body, (list, tuple)):
+            for k, item in enumerate(body):
+                if isinstance(item, dict):
+                    rows += _section_rows(f"{section}.{k}", section.rstrip("s"), item)
+            continue
+        if isinstance(body, dict):
+            rows += _section_rows(section, section, body)
+        else:
+            spec = _key("", section)
+            rows.append([section, _format(body, spec.unit if spec else ""), spec.doc if spec else ""])
+    return rows
+
+
+def _section_rows(path: str, section: str, body: dict[str, Any]) -> list[list[str]]:
+    rows: list[list[str]] = []
+    for key, value in body.items():
+        if value is None or value == () or value == []:
+            continue
+        if section == "rectifier" and key in ("stages", "capacitance") and \
+                body.get("topology") not in ("doubler", "cascade"):
+            continue
+        if section == "rectifier" and key == "stages" and body.get("topology") != "cascade":
+            continue
+        if section == "rectifier" and key == "diode" and isinstance(value, dict):
+            rows += _diode_rows(path, value)
+            continue
+        if isinstance(value, dict):
+            rows += _section_rows(f"{path}.{key}", f"{section}.{key}", value)
+            continue
+        if isinstance(value, (list, tuple)):
+            text = ", ".join(_format(v, "") if not isinstance(v, list) else "/".join(_format(x, "") for x in v)
+                             for v in value)
+            rows.append([f"{path}.{key}", text, ""])
+            continue
+        spec = _key(section, key)
+        rows.append([f"{path}.{key}", _format(value, spec.unit if spec else ""), spec.doc if spec else ""])
+    return rows
+
+
+def _diode_rows(path: str, diode: dict[str, Any]) -> list[list[str]]:
+    name = diode.get("name", "")
+    label = name if name != "inline" else "inline model"
+    rows = [[f"{path}.diode", label, str(diode.get("source") or "the rectifier diode")]]
+    model = []
+    for key, unit in (("is", "A"), ("n", ""), ("rs", "ohm"), ("bv", "V"), ("tt", "s"), ("cjo", "F")):
+        v = diode.get(key)
+        if v is not None and (v != 0 or key in ("is", "n", "rs")):
+            model.append(f"{key} {_format(v, unit)}")
+    if model and diode.get("vacuum") is None:
+        rows.append([f"{path}.diode (model)", ", ".join(model), "junction parameters simkit simulates"])
+    ratings = diode.get("ratings") or {}
+    rated = [f"{label} {_format(ratings[k], u)}" for k, label, u in
+             (("vrrm", "VRRM", "V"), ("ifav", "IF(AV)", "A"), ("ifsm", "IFSM", "A"), ("trr", "trr", "s"))
+             if ratings.get(k) is not None]
+    if rated:
+        rows.append([f"{path}.diode (ratings)", ", ".join(rated), "datasheet limits"])
+    return rows
+
+
+def _figure_rows(result: RunResult) -> list[list[str]]:
+    from simkit.pipeline import FIGURES
+
+    rows = []
+    for key, (_unit, meaning) in FIGURES.items():
+        if key in result.metrics:
+            rows.append([f"`{key}`", show(key, result.metrics[key]), meaning])
+    for key, value in result.metrics.items():
+        if key not in FIGURES:
+            rows.append([f"`{key}`", show(key, value), ""])
+    return rows
+
+
+def _part_tables(result: RunResult) -> list[tuple[str, list[str], list[list[str]], str]]:
+    tables = []
+    placed: set[str] = set()
+    groups = [*list(PART_GROUPS), ("Other parts", ())]
+    for title, roles in groups:
+        names = [n for n, f in result.parts.items() if n not in placed and (not roles or _role_in(f, roles))]
+        if not names:
+            continue
+        placed.update(names)
+        names.sort(key=lambda n: _role_rank(result.parts[n], roles))
+        keys: list[str] = []
+        for n in names:
+            for k in result.parts[n]:
+                if k != "role" and k not in keys:
+                    keys.append(k)
+        show_role = len({result.parts[n].get("role") for n in names}) > 1
+        headers = ["part", *(["what"] if show_role else []), *[PART_HEADERS.get(k, k) for k in keys]]
+        rows = []
+        for n in names:
+            f = result.parts[n]
+            rows.append([n, *([str(f.get("role", ""))] if show_role else []), *[_cell(k, f.get(k)) for k in keys]])
+        tables.append((title, headers, rows, ("ll" if show_role else "l") + "r" * len(keys)))
+    return tables
+
+
+def _role_in(figures: dict[str, Any], roles: tuple[str, ...]) -> bool:
+    return _role_rank(figures, roles) < len(roles)
+
+
+def _role_rank(figures: dict[str, Any], roles: tuple[str, ...]) -> int:
+    """Position of a part's role in a group's roles (len(roles) when it is not there)."""
+    role = str(figures.get("role", ""))
+    for k, r in enumerate(roles):
+        if role == r or (r.startswith("*") and role.endswith(" " + r[1:])):
+            return k
+    return len(roles)
+
+
+def _cell(key: str, value: Any) -> str:
+    if value is None:
+        return "–"
+    if isinstance(value, float) and not math.isfinite(value):
+        return "n/a"
+    return show(key, value)
+
+
+def _extra(result: RunResult, name: str) -> Any:
+    value = getattr(result, name, None)
+    if value is None:
+        value = result.extra.get(name) if isinstance(getattr(result, "extra", None), dict) else None
+    return value
+
+
+def _waves_of(run: Any) -> Any:
+    """The Waveforms of a run-like object: ``.waves``, or ``.run.waves`` (a keyed run)."""
+    if run is None:
+        return None
+    waves = getattr(run, "waves", None)
+    if waves is None and getattr(run, "run", None) is not None:
+        waves = getattr(run.run, "waves", None)
+    return waves
+
+
+def _figures_note(result: RunResult, keys: tuple[tuple[str, str], ...]) -> str:
+    found = [f"{label} {show(k, result.metrics[k])}" for k, label in keys
+             if isinstance(result.metrics.get(k), float) and math.isfinite(result.metrics[k])]
+    return ("Figures: " + ", ".join(found) + ".") if found else ""
+
+
+def _keyed_note(result: RunResult) -> str:
+    return _figures_note(result, (("vout_keydown_v", "output key-down"), ("vout_keyup_v", "key-up"),
+                                  ("sag_v", "sag"), ("chirp_hz", "chirp")))
+
+
+def _steps_note(result: RunResult) -> str:
+    return _figures_note(result, (("vout_keydown_v", "output at the heaviest step"),
+                                  ("vout_keyup_v", "at the lightest"), ("sag_v", "sag"),
+                                  ("recovery_time_s", "recovery to 1 %"), ("overshoot_v", "overshoot"),
+                                  ("vout_warmup_v", "highest before the loads draw"),
+                                  ("cap_peak_warmup_v", "highest capacitor voltage before they draw")))
+
+
+def _verdicts(result: RunResult, checks: Any = None) -> list[dict[str, Any]]:
+    if checks is not None:
+        return [v.to_json() for v in checks.verdicts]
+    v = _extra(result, "verdicts")
+    return [x.to_json() if hasattr(x, "to_json") else dict(x) for x in v] if v else []
+
+
+def _value(x: Any, unit: str, rule: str) -> str:
+    if not isinstance(x, (int, float)) or isinstance(x, bool):
+        return "–" if x is None else str(x)
+    if not math.isfinite(x):
+        return "never" if unit == "s" else "n/a"
+    if unit in ("A2s", "A²s"):
+        return f"{x:.4g} A²s"
+    if unit == "missing":
+        return f"{x:g}"
+    return eng(float(x), {"ohm": "Ω"}.get(unit, unit or _unit_from_rule(rule)))
+
+
+def _verdict_row(v: dict[str, Any], bases: list[str]) -> list[str]:
+    """One verdict as table cells (with markup); its limit's source is numbered into ``bases``."""
+    unit = str(v.get("unit") or "")
+    rule = str(v.get("rule", ""))
+    margin = v.get("margin")
+    m = f"{margin * 100:+.0f} %" if isinstance(margin, (int, float)) and math.isfinite(margin) else "–"
+    limit = "none given" if unit == "missing" else _value(v.get("limit"), unit, rule)
+    verdict = str(v.get("verdict", ""))
+    shown = verdict if verdict == "pass" else f"**{verdict.upper()}**"
+    basis = str(v.get("basis", "") or "")
+    ref = ""
+    if basis:
+        if basis not in bases:
+            bases.append(basis)
+        ref = f"[{bases.index(basis) + 1}]"
+    return [_plain(str(v.get("part", ""))), _plain(rule), _value(v.get("value"), unit, rule), limit, m, shown,
+            _plain(str(v.get("corner", "") or "")), ref]
+
+
+def _plain(text: str) -> str:
+    """Text for a table with markup on: no accidental `code` or **bold**."""
+    return text.replace("`", "'").replace("**", "* *")
+
+
+def _check_summary(doc: Document, checks: Any) -> None:
+    s = checks.summary()
+    doc.paragraph(f"**{s['pass']} pass, {s['marginal']} marginal, {s['fail']} fail**: overall "
+                  f"**{s['result']}**. Corners simulated: {'; '.join(str(c) for c in s.get('corners', []))}.")
+    if s.get("not_checked"):
+        doc.paragraph("Not checked, because the design gives no rating:")
+        doc.bullets([str(x) for x in s["not_checked"]], markup=False)
+    fz = s.get("fuse") or {}
+    if fz.get("rating_a"):
+        doc.paragraph(f"Suggested fuse: **{eng(fz['rating_a'], 'A')} {fz.get('type', '')}**, {fz.get('where', '')} "
+                      f"({fz.get('why', '')}; highest RMS current {eng(fz.get('rms_current_a', 0.0), 'A')}).")
+
+
+def _unit_from_rule(rule: str) -> str:
+    """A unit from a figure-style rule name (``piv_v`` -> V), for verdicts that carry none."""
+    return unit_of(rule) or ""
+
+
+def default_out_dir(design_path: str) -> Path:
+    """``simkit report amp.toml`` writes into ``amp-report/`` unless ``--out`` says otherwise."""
+    return Path(f"{Path(design_path).stem}-report")
