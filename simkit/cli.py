@@ -29,6 +29,28 @@ def _simulate(design):  # type: ignore[no-untyped-def]
     return simulate(design)
 
 
+def _simulate_at(design, vscale: float):  # type: ignore[no-untyped-def]
+    from simkit.pipeline import simulate
+
+    return simulate(design, vscale=vscale)
+
+
+def _mains_scale(design: Any, mains: str) -> float:
+    """1 +- the design's mains tolerance for --mains high/low."""
+    if mains == "nominal":
+        return 1.0
+    from simkit.errors import DesignError
+
+    tol = design.source.mains_tolerance
+    if tol is None:
+        raise DesignError(f"--mains {mains} needs source.mains_tolerance (e.g. \"10%\")", file=design.origin,
+                          key="source.mains_tolerance")
+    if design.source.kind == "inverter":
+        raise DesignError("--mains applies to mains sources; an inverter's supply is its battery",
+                          file=design.origin, key="source.kind")
+    return 1.0 + tol if mains == "high" else 1.0 - tol
+
+
 def _warn(result: Any) -> None:
     for w in result.warnings:
         click.echo(f"simkit: warning: {w}", err=True)
@@ -52,17 +74,23 @@ def cli() -> None:
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), help="Also write result.json, "
               "deck.cir and waveforms.png into this folder.")
 @click.option("--force", is_flag=True, help="With --out: replace files simkit did not write.")
-def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | None, force: bool) -> None:
+@click.option("--mains", type=click.Choice(["nominal", "high", "low"]), default="nominal", show_default=True,
+              help="Simulate the supply at +- source.mains_tolerance.")
+def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | None, force: bool,
+        mains: str) -> None:
     """Simulate a design and print its figures."""
     from simkit.report.outputs import OutputDir
     from simkit.report.text import run_table
 
     d = _load(design, overrides)
+    vscale = _mains_scale(d, mains)
     out = None
     if out_dir:
         out = OutputDir(out_dir, force=force)
         out.check(["result.json", "deck.cir", "waveforms.png"])
-    result = _simulate(d)
+    result = _simulate(d) if vscale == 1.0 else _simulate_at(d, vscale)
+    if vscale != 1.0:
+        result.warnings.insert(0, f"simulated at {mains} mains: the source EMF x {vscale:g}")
     _warn(result)
     doc = result.to_json()
     if as_json:
@@ -100,6 +128,27 @@ def netlist(design: str, overrides: tuple[str, ...], output: str | None, force: 
 
 
 @cli.command()
+@click.argument("design", type=click.Path())
+@click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
+@click.option("--json", "as_json", is_flag=True, help="Print exactly one JSON document on stdout.")
+def check(design: str, overrides: tuple[str, ...], as_json: bool) -> None:
+    """Check every part against its ratings at the worst corners, and the discharge after switch-off.
+
+    Exit status 1 when any verdict is fail, so scripts can gate on it.
+    """
+    from simkit.checks import check_design, report_text
+
+    d = _load(design, overrides)
+    rep = check_design(d)
+    if as_json:
+        click.echo(json.dumps(rep.to_json(), indent=2))
+    else:
+        click.echo(report_text(rep), nl=False)
+    if rep.failed:
+        raise click.exceptions.Exit(1)
+
+
+@cli.command()
 @click.option("--out", "out_dir", default="results", show_default=True, type=click.Path(file_okay=False),
               help="Folder for the results (one sub-folder per example).")
 @click.option("--force", is_flag=True, help="Replace files simkit did not write.")
@@ -108,6 +157,34 @@ def demo(out_dir: str, force: bool) -> None:
     from simkit.demo import run_demo
 
     run_demo(Path(out_dir), force=force, echo=click.echo)
+
+
+@cli.command()
+@click.argument("design", type=click.Path())
+@click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), help="Folder for the report "
+              "(default: DESIGN's name with -report, e.g. amp-report/).")
+@click.option("--force", is_flag=True, help="Replace files simkit did not write.")
+def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: bool) -> None:
+    """Write a report for documents: report.md, a self-contained report.html, the schematic,
+    the verdicts of the stress checks, the plots (PNG and SVG) and the deck."""
+    from simkit.report.design_report import default_out_dir, run_checks, write_report
+    from simkit.report.outputs import OutputDir
+
+    d = _load(design, overrides)
+    out = OutputDir(out_dir or default_out_dir(design), force=force)
+    out.check(["report.md", "report.html"])
+    result = _simulate(d)
+    _warn(result)
+    checks, check_error = run_checks(d)
+    if check_error:
+        click.echo(f"simkit: warning: the stress checks could not be completed: {check_error}", err=True)
+    names = write_report(result, out, Path(design).read_text("utf-8"), Path(design).name, overrides, checks,
+                         check_error)
+    images = sum(1 for n in names if n.endswith(".png"))
+    click.echo(f"simkit: wrote report.md, report.html, {images} figures (PNG and SVG) and deck.cir in {out.path}",
+               err=True)
+    click.echo(str(out.path / "report.html"))
 
 
 @cli.command()
@@ -134,6 +211,116 @@ def new(file: str, topology: str) -> None:
     click.echo(f"simkit: wrote {file} ({topology}); edit it, then: simkit run {file}", err=True)
 
 
+def _many_options(f: Any) -> Any:
+    """Options shared by sweep and spread: workers, output folder, resume."""
+    f = click.option("--force", is_flag=True, help="Replace results in --out that simkit did not write, or that "
+                     "belong to another sweep or spread.")(f)
+    f = click.option("--retry-failed", is_flag=True, help="When resuming, simulate again the points that failed.")(f)
+    f = click.option("--timeout", type=click.FloatRange(min=1.0), default=600.0, show_default=True,
+                     metavar="SECONDS", help="Stop a point that takes longer and record it as failed "
+                     "(local workers).")(f)
+    f = click.option("--scheduler", metavar="ADDRESS", help="Run the points on the Dask distributed cluster "
+                     "whose scheduler is at ADDRESS (tcp://HOST:PORT) instead of local processes.")(f)
+    f = click.option("--jobs", type=click.IntRange(min=1), metavar="N", help="Worker processes, each with its own "
+                     "ngspice (default: the number of cores).")(f)
+    f = click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)(f)
+    return f
+
+
+def _many_opts(out: str, jobs: int | None, scheduler: str | None, timeout: float, force: bool,
+               retry_failed: bool) -> Any:
+    from simkit.sweep.runner import RunOptions
+
+    if scheduler and jobs:
+        raise UsageError("--jobs is for local workers; with --scheduler the cluster's workers run the points")
+    return RunOptions(out=Path(out), jobs=jobs, scheduler=scheduler, timeout=timeout, force=force,
+                      retry_failed=retry_failed)
+
+
+def _many_summary(report: Any, what: str) -> None:
+    failed = f", {report.failed} failed" if report.failed else ""
+    from_journal = report.finished - report.computed
+    kept = f" ({from_journal} from the earlier run)" if report.resumed and from_journal else ""
+    click.echo(f"{report.kind}: {report.finished} of {report.total} {what} done{failed}{kept} in "
+               f"{report.seconds:.1f} s; results in {report.out}")
+    checked = [e["check"] for e in report.entries if e.get("check")]
+    if checked:
+        click.echo("check: " + ", ".join(f"{checked.count(k)} {k}" for k in ("pass", "marginal", "fail")))
+    for p in report.files:
+        click.echo(f"  {p}")
+
+
+@cli.command()
+@click.argument("design", type=click.Path())
+@click.option("--vary", "varies", multiple=True, required=True, metavar="PATH=SPEC",
+              help="A design value and its values: a list 22u,47u,100u, a range START:STOP:COUNT, or log steps "
+              "START:STOP:COUNTlog (e.g. 10u:1m:9log).  Several --vary make a grid.")
+@click.option("--zip", "paired", is_flag=True, help="Pair the --vary lists point by point (same length) "
+              "instead of making a grid.")
+@click.option("--plot", "plot_figs", metavar="FIGURE[,FIGURE...]", help="Write sweep.png: these figures "
+              "against the first --vary, one line per value of the second.")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), help="Folder for sweep.csv, sweep.json and "
+              "the journal (default: DESIGN's name + '-sweep').")
+@click.option("--check", "check", is_flag=True, help="Also check every point as `simkit check` does and add its "
+              "verdicts to the rows (more simulations per point).")
+@click.option("--report", "report", is_flag=True, help="Also write report.md and report.html into --out.")
+@_many_options
+def sweep(design: str, varies: tuple[str, ...], paired: bool, plot_figs: str | None, out_dir: str | None,
+          check: bool, report: bool, overrides: tuple[str, ...], jobs: int | None, scheduler: str | None,
+          timeout: float, retry_failed: bool, force: bool) -> None:
+    """Simulate a design over a grid of values; interrupted runs resume where they stopped."""
+    from simkit.sweep.runner import plot_list, run_sweep
+
+    out = out_dir or f"{Path(design).stem}-sweep"
+    opts = _many_opts(out, jobs, scheduler, timeout, force, retry_failed)
+    done = run_sweep(design, varies, opts, paired=paired, overrides=overrides, plot=plot_list(plot_figs),
+                     check=check, report=report)
+    _many_summary(done, "points")
+
+
+@cli.command()
+@click.argument("design", type=click.Path())
+@click.option("--runs", type=click.IntRange(min=1), required=True, metavar="N", help="Number of Monte Carlo runs.")
+@click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True, metavar="S",
+              help="Seed of the draws: the same seed gives the same values and results.")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), help="Folder for spread.csv, spread.json and "
+              "the journal (default: DESIGN's name + '-spread').")
+@click.option("--check", "check", is_flag=True, help="Also check every run as `simkit check` does; the summary "
+              "gives the share of runs that pass every rule.")
+@click.option("--report", "report", is_flag=True, help="Also write report.md and report.html into --out.")
+@_many_options
+def spread(design: str, runs: int, seed: int, out_dir: str | None, check: bool, report: bool,
+           overrides: tuple[str, ...], jobs: int | None, scheduler: str | None, timeout: float, retry_failed: bool,
+           force: bool) -> None:
+    """Draw part values within the design file's tolerances and simulate each draw."""
+    from simkit.sweep.spread import run_spread, summary_table
+
+    out = out_dir or f"{Path(design).stem}-spread"
+    opts = _many_opts(out, jobs, scheduler, timeout, force, retry_failed)
+    done = run_spread(design, runs, seed, opts, overrides=overrides, check=check, report=report)
+    _many_summary(done, "runs")
+    click.echo(summary_table(done), nl=False)
+
+
+@cli.command()
+@click.argument("design", type=click.Path())
+@click.option("--vary", "vary", required=True, metavar="PATH=LOW:HIGH",
+              help="The value to size and the range to search, e.g. filter.0.c=10u:1m.")
+@click.option("--target", "target", required=True, metavar="FIGURE<=VALUE",
+              help='What the figure must meet: "ripple_pp_v<=2", "vout_dc_v>=300" or "vout_dc_v=320".')
+@click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
+@click.option("--json", "as_json", is_flag=True, help="Print exactly one JSON document on stdout.")
+def size(design: str, vary: str, target: str, overrides: tuple[str, ...], as_json: bool) -> None:
+    """Find the value of one design parameter that meets a target figure."""
+    from simkit.sweep.size import run_size, summary_text
+
+    result = run_size(design, vary, target, overrides=overrides)
+    if as_json:
+        click.echo(json.dumps(result.to_json(), indent=2))
+    else:
+        click.echo(summary_text(result), nl=False)
+
+
 def examples_dir() -> Path:
     return Path(str(resources.files("simkit") / "examples"))
 
@@ -141,7 +328,9 @@ def examples_dir() -> Path:
 def main(argv: list[str] | None = None) -> None:
     """Console entry point: maps every error to its exit code, never a traceback for user errors."""
     try:
-        cli.main(args=argv, prog_name="simkit", standalone_mode=False)
+        code = cli.main(args=argv, prog_name="simkit", standalone_mode=False)
+        if isinstance(code, int) and code:
+            sys.exit(code)
     except click.exceptions.Exit as exc:
         sys.exit(exc.exit_code)
     except click.ClickException as exc:

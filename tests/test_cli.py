@@ -147,3 +147,17 @@ def test_unknown_command_and_option_exit_2(capsys: pytest.CaptureFixture[str]) -
     assert code == 2 and "No such command" in err
     code, _, err = call(["run", "--frobnicate"], capsys)
     assert code == 2 and "frobnicate" in err
+
+
+@pytest.mark.ngspice
+def test_mains_corner_scales_the_source(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # Formula 14 (bridge PIV ~ Vpk) scales with the EMF: +10 % mains gives about +10 % reverse voltage.
+    p = write_design(tmp_path, BRIDGE_TOML.replace('resistance = "25"', 'resistance = "25"\nmains_tolerance = "10%"'))
+    _, out, _ = call(["run", str(p), "--json"], capsys)
+    _, high, err = call(["run", str(p), "--json", "--mains", "high"], capsys)
+    nominal, corner = json.loads(out)["metrics"], json.loads(high)["metrics"]
+    assert corner["diode_piv_v"] / nominal["diode_piv_v"] == pytest.approx(1.1, rel=0.01)
+    assert "high mains" in err
+    q = write_design(tmp_path, BRIDGE_TOML, "plain.toml")
+    code, _, err = call(["run", str(q), "--mains", "low"], capsys)
+    assert code == 2 and "source.mains_tolerance" in err
