@@ -265,3 +265,25 @@ def test_check_command_exit_codes_and_json(tmp_path, capsys) -> None:  # type: i
     out, _ = capsys.readouterr()
     assert "HIGH VOLTAGE" in out and "suggested fuse" in out and "slow-blow" in out
     assert info.value.code == (1 if " FAIL " in out else 0)
+
+
+@pytest.mark.ngspice
+def test_ratings_from_a_user_part_library(tmp_path) -> None:  # type: ignore[no-untyped-def]
+    # A parts file of the user's: a diode by name, a capacitor's rating and ESR, a resistor's power rating.
+    (tmp_path / "parts.toml").write_text(
+        '[diodes.MYDIODE]\nis = "5n"\nn = 1.8\nrs = "40m"\nvrrm = "800"\nifsm = "25"\n'
+        '[capacitors.EL450]\nv = "450"\nripple = "0.6"\nesr = "0.4"\n[resistors.R3W]\nw = "3"\n')
+    design = tmp_path / "d.toml"
+    design.write_text(DISCHARGE.replace("{bleeder}", '[bleeder]\nr = "22k"\npart = "R3W"')
+                      .replace('title = "discharge"', 'title = "library"\nlibrary = "parts.toml"')
+                      .replace('topology = "bridge"', 'topology = "bridge"\ndiode = "MYDIODE"')
+                      .replace('c = "100u"', 'c = "100u"\npart = "EL450"'))
+    from simkit.design.loader import load_design
+
+    d = load_design(design)
+    assert d.filters[0].esr == 0.4 and d.filters[0].rating is not None and d.filters[0].rating.v == 450
+    rep = check_design(d)
+    assert verdict(rep, "D1", "reverse voltage").limit == pytest.approx(0.8 * 800)
+    assert verdict(rep, "D1", "surge current").limit == 25
+    assert verdict(rep, "C1", "peak voltage").limit == pytest.approx(0.9 * 450)
+    assert verdict(rep, "RBLEED", "dissipation").limit == pytest.approx(0.5 * 3)

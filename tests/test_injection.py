@@ -228,6 +228,9 @@ class Field:
 
 TITLE_LINE = 'title = "Test: bridge into CRC"'
 
+#: A user part library the field table's designs may name (written beside each test design).
+PARTS_TOML = '[resistors.R3W]\nw = "3"\n'
+
 FIELDS: list[Field] = [
     Field("title", BRIDGE_TOML, TITLE_LINE, "title = {v}", "Test: bridge into CRC"),
     Field("note", BRIDGE_TOML, TITLE_LINE, TITLE_LINE + "\nnote = {v}", "built 1962"),
@@ -309,6 +312,9 @@ FIELDS: list[Field] = [
           "kind = {v}", "series"),
     Field("regulator.resistance", BRIDGE_TOML + '[regulator]\nkind = "shunt"\nresistance = "3.3k"\ntube = "OD3"\n',
           'resistance = "3.3k"\ntube', "resistance = {v}\ntube", "3.3k"),
+    Field("library", BRIDGE_TOML, TITLE_LINE, TITLE_LINE + "\nlibrary = {v}", "parts.toml"),
+    Field("bleeder.part", BRIDGE_TOML.replace(TITLE_LINE, TITLE_LINE + '\nlibrary = "parts.toml"'), 'r = "220k"',
+          'r = "220k"\npart = {v}', "R3W"),
     Field("spread.distribution", BRIDGE_TOML + "[spread]\n#\n", "#\n", "distribution = {v}\n", "normal"),
     *(Field(f"simulation.{k}", BRIDGE_TOML + "[simulation]\n#\n", "#\n", f"{k} = {{v}}\n", good)
       for k, good in (("switch_on_phase", "90"), ("steps_per_period", "1000"), ("settle_tolerance", "1e-4"),
@@ -399,6 +405,7 @@ def test_hostile_value_is_refused(
 ) -> None:
     marker = tmp_path / "PWNED"
     path = tmp_path / "supply.toml"
+    (tmp_path / "parts.toml").write_text(PARTS_TOML)
     for value in hostile_values(marker):
         if channel == "file":
             path.write_text(field.design(value), "utf-8")
@@ -446,10 +453,20 @@ def test_hostile_key_names_are_refused(
 
 def test_field_table_designs_are_valid() -> None:
     # Each hostile value is the only thing wrong with its design.
+    import os
+    import tempfile
+
     from simkit.design.loader import design_from_dict, parse_toml_text
 
-    for field in FIELDS:
-        design_from_dict(parse_toml_text(field.design(field.good)))
+    with tempfile.TemporaryDirectory() as tmp:
+        Path(tmp, "parts.toml").write_text(PARTS_TOML)
+        here = os.getcwd()
+        os.chdir(tmp)
+        try:
+            for field in FIELDS:
+                design_from_dict(parse_toml_text(field.design(field.good)))
+        finally:
+            os.chdir(here)
 
 
 def test_every_string_field_is_covered() -> None:

@@ -11,6 +11,7 @@ import difflib
 import math
 import sys
 from collections.abc import Mapping, Sequence
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -179,6 +180,8 @@ class _Reader:
 
     def __init__(self, file: str) -> None:
         self.file = file
+        self.library: dict[str, Any] = {}  # the user's part library file, when the design names one
+        self.library_file = ""
 
     def fail(self, key: str, problem: str) -> DesignError:
         return DesignError(problem, file=self.file, key=key or None)
@@ -343,6 +346,8 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
     if len(title) > MAX_TITLE:
         raise rd.fail("title", f"is {len(title)} characters long; keep it under {MAX_TITLE}")
     note = rd.text(data, "note", "", "")
+    if "library" in data:
+        _load_library(rd, rd.text(data, "library", "", ""))
 
     rectifier = _rectifier(rd, data)
     source = _source(rd, data, rectifier.topology)
@@ -642,8 +647,16 @@ def _rating(rd: _Reader, t: Mapping[str, Any], key: str, path: str, kind: str) -
     return PartRating(**vals)  # type: ignore[arg-type]
 
 
-def _diode(rd: _Reader, spec: Any) -> DiodeModel:
-    key = "rectifier.diode"
+def _diode(rd: _Reader, spec: Any, key: str = "rectifier.diode") -> DiodeModel:
+    if isinstance(spec, str) and spec in rd.library.get("diodes", {}):
+        user = rd.library["diodes"][spec]
+        outer = rd.file
+        rd.file = rd.library_file
+        try:
+            model = _diode(rd, user if isinstance(user, dict) else None, f"diodes.{spec}")
+        finally:
+            rd.file = outer
+        return replace(model, name=spec, source=f"library file {rd.library_file}")
     if isinstance(spec, str):
         part = diodes.lookup(spec)
         if part is not None:
@@ -727,6 +740,15 @@ def _filters(rd: _Reader, data: Mapping[str, Any]) -> list[FilterSection]:
         assert value is not None and esr is not None and dcr is not None
         tol = rd.percent(sec, "tolerance", path)
         rating = _rating(rd, sec, "rating", path, kind)
+        if "part" in sec:
+            if rating is not None:
+                raise rd.fail(f"{path}.part", "give part or rating, not both")
+            section = {"c": "capacitors", "l": "chokes", "r": "resistors"}[kind]
+            rating, extra = _library_part(rd, sec, path, section)
+            if kind == "c" and "esr" not in sec and "esr" in extra:
+                esr = extra["esr"]
+            if kind == "l" and "dcr" not in sec and "dcr" in extra:
+                dcr = extra["dcr"]
         out.append(FilterSection(kind=kind, value=value, esr=esr, dcr=dcr, tolerance=tol,  # type: ignore[arg-type]
                                  rating=rating))
     return out
@@ -880,8 +902,51 @@ def _bleeder(rd: _Reader, data: Mapping[str, Any]) -> Bleeder | None:
     rd.check_keys(t, schema.BLEEDER, "bleeder")
     r = rd.value(t, "r", "bleeder", "ohm", above=0, maximum=1e12)
     assert r is not None
-    return Bleeder(r=r, tolerance=rd.percent(t, "tolerance", "bleeder"),
-                   rating=_rating(rd, t, "rating", "bleeder", "r"))
+    rating = _rating(rd, t, "rating", "bleeder", "r")
+    if "part" in t:
+        if rating is not None:
+            raise rd.fail("bleeder.part", "give part or rating, not both")
+        rating, _ = _library_part(rd, t, "bleeder", "resistors")
+    return Bleeder(r=r, tolerance=rd.percent(t, "tolerance", "bleeder"), rating=rating)
+
+
+def _load_library(rd: _Reader, name: str) -> None:
+    """Read the user's part library named by the design's ``library`` key."""
+    if not name.strip():
+        raise rd.fail("library", "expected the path of a TOML parts file")
+    if not name.isprintable():
+        raise rd.fail("library", "must be a file name on one line (no line breaks or control characters)")
+    base = Path(rd.file).parent if rd.file and not rd.file.startswith("<") else Path(".")
+    path = base / name
+    try:
+        data = read_toml(path)
+    except DesignError as exc:
+        raise rd.fail("library", f"the parts file {path}: {exc.problem}") from None
+    lib_rd = _Reader(str(path))
+    allowed = {"diodes": schema.Key("table", "diodes by name"), **{k: schema.Key("table", k) for k in schema.LIBRARY}}
+    lib_rd.check_keys(data, allowed, "")
+    for section, value in data.items():
+        if not isinstance(value, dict) or not all(isinstance(v, dict) for v in value.values()):
+            raise lib_rd.fail(section, f"expected [{section}.NAME] tables")
+    rd.library = data
+    rd.library_file = str(path)
+
+
+def _library_part(rd: _Reader, t: Mapping[str, Any], path: str, section: str) -> tuple[PartRating, dict[str, float]]:
+    name = t["part"]
+    if not isinstance(name, str) or name not in rd.library.get(section, {}):
+        have = ", ".join(rd.library.get(section, {})) or "none"
+        where = f"the library file {rd.library_file}" if rd.library_file else "no library file (set library = ...)"
+        raise rd.fail(f"{path}.part", f"{_show(name)} is not among the {section} of {where} (have: {have})")
+    entry = rd.library[section][name]
+    lib_rd = _Reader(rd.library_file)
+    lib_rd.check_keys(entry, schema.LIBRARY[section], f"{section}.{name}")
+    units = {"v": "V", "ripple": "A", "ripple_frequency": "Hz", "esr": "ohm", "i": "A", "dcr": "ohm", "w": "W"}
+    vals = {k: lib_rd.value(entry, k, f"{section}.{name}", units[k], minimum=0, maximum=1e6) for k in entry}
+    extra = {k: v for k, v in vals.items() if k in ("esr", "dcr") and v is not None}
+    rating = PartRating(**{k: v for k, v in vals.items() if k not in ("esr", "dcr")},  # type: ignore[arg-type]
+                        source=f"{name} in {rd.library_file}")
+    return rating, extra
 
 
 def _regulator(rd: _Reader, data: Mapping[str, Any]) -> Regulator | None:

@@ -23,6 +23,8 @@ class Key:
 TOP: dict[str, Key] = {
     "title": Key("str", "one line naming the design; shown in tables and reports", default="file name"),
     "note": Key("str", "free text for reports (never written into a deck)", default='""'),
+    "library": Key("str", "a parts file of your own (TOML, path relative to the design file): diodes by name, "
+                   "and ratings for capacitors, chokes and resistors used with part = \"NAME\""),
     "source": Key("table", "the winding or inverter output that feeds the rectifier", required=True),
     "rectifier": Key("table", "the rectifier arrangement and its diodes", required=True),
     "filter": Key("array", "filter sections from the rectifier towards the load, in order"),
@@ -135,6 +137,7 @@ FILTER: dict[str, Key] = {
     "dcr": Key("ohm", "winding resistance of l", default="0"),
     "r": Key("ohm", "series resistor"),
     "tolerance": Key("%", "tolerance of the section's c, l or r value, for `simkit spread`", default="none"),
+    "part": Key("str", "a part of the library file: its ratings (and esr or dcr, unless given here)"),
     "rating": Key("table", 'ratings, for `simkit check`: c { v = "450", ripple = "1.2", ripple_frequency = "100" }, '
                   'l { i = "150m" }, r { w = "2" }'),
 }
@@ -171,6 +174,7 @@ LOAD: dict[str, Key] = {
 BLEEDER: dict[str, Key] = {
     "r": Key("ohm", "bleeder resistance across the output", required=True),
     "tolerance": Key("%", "tolerance of r, for `simkit spread`", default="none"),
+    "part": Key("str", "a resistor of the library file (its power rating)"),
     "rating": Key("table", 'power rating, { w = "2" }, for `simkit check`'),
 }
 
@@ -238,4 +242,13 @@ SECTIONS: dict[str, dict[str, Key]] = {
     "spread": SPREAD,
     "checks": CHECKS,
     "regulator": REGULATOR,
+}
+
+
+#: Sections of a user part library file (``library = "parts.toml"``).
+LIBRARY: dict[str, dict[str, Key]] = {
+    "capacitors": {"v": Key("V", "rated voltage"), "ripple": Key("A", "ripple-current rating"),
+                   "ripple_frequency": Key("Hz", "frequency of the ripple rating"), "esr": Key("ohm", "ESR")},
+    "chokes": {"i": Key("A", "rated DC current"), "dcr": Key("ohm", "winding resistance")},
+    "resistors": {"w": Key("W", "power rating")},
 }
