@@ -163,6 +163,8 @@ def timeline_end(design: Design) -> float:
 
 #: Steps per period of the long, coarse part of a start-up run.
 COARSE_STEPS = 200
+#: Periods of a start-up run at the design's fine step (the surge is in the first of them).
+FINE_START_PERIODS = 3
 #: Periods per chunk of the coarse part.
 COARSE_CHUNK = 10
 #: The start-up run stops at the latest after this many periods.
@@ -181,15 +183,25 @@ def switch_on(engine: Engine, design: Design, circuit: Circuit, target: float | 
     T = circuit.period
     span = switch_on_span(design, circuit)
     zero = {e.name: 0.0 for e in circuit.state_elements()}
-    first = run_span(engine, design, circuit, span, zero)
+    # The surge comes in the first periods: those run at the fine step; a longer overshoot (a choke
+    # ringing with the filter capacitors) is smooth and runs on at the coarse step.
+    fine = min(span, FINE_START_PERIODS * T) if design.simulation.switch_on_time is None else span
+    first = run_span(engine, design, circuit, fine, zero)
+    pieces = [first]
+    if span > fine + 1e-12:
+        rest = math.ceil((span - fine) / T - 1e-9) * T
+        pieces.append(run_span(engine, design, circuit, rest, end_state(circuit, first.waves),
+                               steps=COARSE_STEPS, offset=fine))
+        span = fine + rest
     out = circuit.output
     events = timeline_end(design)
-    reached = target is None or float(np.max(first.waves.v(out))) >= 0.9 * target
+    reached = target is None or max(float(np.max(p.waves.v(out))) for p in pieces) >= 0.9 * target
     if events <= 0 and reached:
-        return first
-    pieces = [first]
+        if len(pieces) == 1:
+            return first
+        return Run(first.deck, span, _merge(pieces), zero, retried=any(p.retried for p in pieces), deck_span=fine)
     t = span
-    state = end_state(circuit, first.waves)
+    state = end_state(circuit, pieces[-1].waves)
     limit = min(MAX_START_PERIODS * T, max(events * 3, 60.0))
     chunk = COARSE_CHUNK * T
     while t < limit:
@@ -220,7 +232,7 @@ def switch_on(engine: Engine, design: Design, circuit: Circuit, target: float | 
         ics = state_at(circuit, run.waves, k0 * T)
         refined = run_span(engine, design, circuit, 2 * T, ics, offset=run.offset + k0 * T)
     return Run(first.deck, float(merged.time[-1]), merged, zero, retried=any(p.retried for p in pieces),
-               deck_span=span, refined=refined)
+               deck_span=fine, refined=refined)
 
 
 def _merge(pieces: list[Run]) -> Waveforms:
