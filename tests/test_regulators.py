@@ -4,14 +4,13 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
 import pytest
 
-from simkit.analysis import metrics as mx
 from simkit.checks import check_design
 from simkit.design.loader import design_from_dict, parse_toml_text
 from simkit.parts.regulators import glow
 from simkit.pipeline import simulate
+from tests.test_physics import _harmonic
 
 pytestmark = pytest.mark.ngspice
 
@@ -79,13 +78,6 @@ def test_series_pass_dissipation_is_headroom_times_current() -> None:
     assert m["reg_vout_v"] == pytest.approx(200 - vgs, abs=0.5)
 
 
-def _fundamental(t: np.ndarray, y: np.ndarray, f: float, t0: float, t1: float) -> float:
-    tt, yy = mx.clip(t, y, t0, t1)
-    c = np.trapezoid(yy * np.cos(2 * np.pi * f * tt), tt)
-    s = np.trapezoid(yy * np.sin(2 * np.pi * f * tt), tt)
-    return float(2 * math.hypot(c, s) / (t1 - t0))
-
-
 def test_ripple_rejection_of_the_filtered_reference() -> None:
     # First-order filters (standard circuit theory): the reference zener divides the input ripple by
     # r_z / (R_ref + r_z), the RC filter by sqrt(1 + (w R C)^2); an ideal follower passes the gate ripple.
@@ -95,8 +87,8 @@ def test_ripple_rejection_of_the_filtered_reference() -> None:
     r = run(text)
     w = r.steady.final.waves
     t0, t1 = r.window
-    a_in = _fundamental(w.time, w.v("raw"), 100.0, t0, t1)
-    a_out = _fundamental(w.time, w.v("out"), 100.0, t0, t1)
+    a_in = _harmonic(w.time, w.v("raw"), 100.0, t0, t1)
+    a_out = _harmonic(w.time, w.v("out"), 100.0, t0, t1)
     r_ref = float(r.circuit.regulator["reference_resistor"])
     wrc = 2 * math.pi * 100 * 100e3 * 100e-9
     expected = (400 / (r_ref + 400)) / math.sqrt(1 + wrc**2)
