@@ -23,13 +23,7 @@ def _load(design: str, overrides: tuple[str, ...]):  # type: ignore[no-untyped-d
     return load_design(design, overrides)
 
 
-def _simulate(design):  # type: ignore[no-untyped-def]
-    from simkit.pipeline import simulate
-
-    return simulate(design)
-
-
-def _simulate_at(design, vscale: float):  # type: ignore[no-untyped-def]
+def _simulate(design, vscale: float = 1.0):  # type: ignore[no-untyped-def]
     from simkit.pipeline import simulate
 
     return simulate(design, vscale=vscale)
@@ -88,7 +82,7 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
     if out_dir:
         out = OutputDir(out_dir, force=force)
         out.check(["result.json", "deck.cir", "waveforms.png"])
-    result = _simulate(d) if vscale == 1.0 else _simulate_at(d, vscale)
+    result = _simulate(d, vscale)
     if vscale != 1.0:
         result.warnings.insert(0, f"simulated at {mains} mains: the source EMF x {vscale:g}")
     _warn(result)

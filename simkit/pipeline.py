@@ -209,11 +209,11 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
         vrev = w.v(d.cathode) - w.v(d.anode)
         i_on = sw.i(d.sense)
         vrev_on = sw.v(d.cathode) - sw.v(d.anode)
+        # The fine first periods, and the coarse period with the highest current simulated again finely
+        # (switch_on only skips that when the coarse part stayed well below the first periods).
         surge = float(np.max(i_on[: np.searchsorted(ts, start.deck_span or s1, side="right")]))
         if refined is not None:
             surge = max(surge, float(np.max(refined.waves.i(d.sense))))
-        else:
-            surge = float(np.max(i_on))
         parts[d.name] = {
             "role": "rectifier plate (vacuum)" if vac is not None else "rectifier diode",
             "peak_a": mx.peak(t, i, t0, t1),

@@ -98,7 +98,7 @@ class Outcome:
     err: str
 
 
-def _no_simulation(design: object) -> object:
+def _no_simulation(design: object, vscale: float = 1.0) -> object:
     raise AssertionError("the simulator was reached: a design mistake must be caught before any run")
 
 

@@ -345,7 +345,7 @@ def run_simkit(capsys: pytest.CaptureFixture[str], *args: str) -> Outcome:
     return Outcome(info.value.code, captured.out, captured.err)
 
 
-def _no_simulation(design: object) -> object:
+def _no_simulation(design: object, vscale: float = 1.0) -> object:
     raise AssertionError("the simulator was reached: the hostile value was accepted")
 
 
