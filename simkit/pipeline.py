@@ -10,19 +10,15 @@ import numpy as np
 
 from simkit import __version__
 from simkit.analysis import metrics as mx
-from simkit.analysis.steady import (
-    MEASURE_PERIODS,
-    KeyedRun,
-    Run,
-    SteadyState,
-    end_state,
-    keyed_steady,
-    steady_state,
-    switch_on,
-)
+from simkit.analysis import plan
+from simkit.analysis.keyed import KeyedRun, keyed_steady
+from simkit.analysis.runs import Run, end_nodes, end_state, transient
+from simkit.analysis.startup import start_limit, switch_on
+from simkit.analysis.steady import MEASURE_PERIODS, Progress, Solution, SteadyState, steady_state
 from simkit.design.loader import design_to_inputs
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine, Waveforms, get_engine
+from simkit.errors import DesignError
 from simkit.netlist.build import build_circuit, keying_drive
 from simkit.netlist.circuit import Circuit
 from simkit.units import spice
@@ -119,30 +115,95 @@ def _clean(v: Any) -> Any:
     return v
 
 
-def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0, regulation: bool = True) -> RunResult:
+#: Periodic states of recent designs (fingerprint, solution): the warm start of a sweep's next point.
+_WARM: list[tuple[tuple[object, ...], np.ndarray, Solution]] = []
+#: How many recent solutions a process keeps for warm starts.
+WARM_KEEP = 16
+
+
+def _fingerprint(circuit: Circuit, vscale: float) -> tuple[tuple[object, ...], np.ndarray]:
+    """The circuit's structure (which warm states fit it) and its values (how near another design is)."""
+    key = (circuit.mode, tuple(e.name for e in circuit.state_elements()))
+    values = [c.value for c in circuit.capacitors] + [i.value for i in circuit.inductors] + \
+        [r.value for r in circuit.resistors] + [w.vrms for w in circuit.windings] + [vscale]
+    return key, np.log(np.maximum(np.abs(np.array(values, dtype=float)), 1e-300))
+
+
+def _nearest(circuit: Circuit, vscale: float) -> Solution | None:
+    """The kept solution of the design nearest to this one (same structure), if any."""
+    key, values = _fingerprint(circuit, vscale)
+    best, dist = None, math.inf
+    for k, v, sol in _WARM:
+        if k == key and v.shape == values.shape:
+            d = float(np.sum(np.abs(v - values)))
+            if d < dist:
+                best, dist = sol, d
+    return best
+
+
+def _remember(circuit: Circuit, vscale: float, solution: Solution) -> None:
+    key, values = _fingerprint(circuit, vscale)
+    _WARM.append((key, values, solution))
+    del _WARM[:-WARM_KEEP]
+
+
+def check_cost(design: Design, circuit: Circuit) -> list[plan.Cost]:
+    """Refuse a design whose analyses would take more than ``simulation.max_points`` (exit 2)."""
+    cycle = max((keying_drive(ld).period or 0.0 for ld in design.keyed), default=0.0)
+    costs = plan.estimate(design, circuit, cycle)
+    total = sum(c.points for c in costs)
+    limit = design.simulation.max_points
+    if total > limit:
+        worst = max(costs, key=lambda c: c.points)
+        raise DesignError(
+            f"this design would need about {total:.3g} time points of simulation, over the limit of {limit:.3g} "
+            f"(the {worst.analysis} alone: {worst.span:.3g} s of simulated time, {worst.points:.3g} points, at "
+            f"{design.source.frequency:g} Hz); raise simulation.max_points to run it anyway, or shorten the "
+            "span (simulation.switch_on_time, simulation.max_settle_time)",
+            file=design.origin, key="simulation.max_points")
+    return costs
+
+
+def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0, regulation: bool = True,
+             warm: bool = False, progress: Progress | None = None) -> RunResult:
     """Run the analyses of a design and compute every figure.
 
     The steady state first (its output voltage is the target the start-up run watches), then
     the start-up run from empty capacitors, then, for keyed loads, steady keying, and with a
     regulator (unless ``regulation`` is false) the extra runs for load and line regulation.
+    With ``warm``, the steady state starts from the periodic state of the last design with the
+    same circuit (a sweep's neighbouring point).
     """
     eng = engine or get_engine()
     circuit = build_circuit(design, phase_deg=0.0, vscale=vscale)
-    steady = steady_state(eng, design, circuit, vscale)
+    check_cost(design, circuit)
+    early: list[str] = []
+    rise = plan.rise_estimate(design, circuit)
+    limit = start_limit(design, circuit)
+    if rise > 3 * limit and design.simulation.switch_on_time is None:
+        early.append(f"the output needs about {rise:.3g} s to rise after switch-on (the filter capacitors charging "
+                     f"through the source impedance), far beyond the {limit:.3g} s start-up run: rise_time_s and "
+                     "the start-up figures cover only that run")
+    steady = steady_state(eng, design, circuit, vscale, warm=_nearest(circuit, vscale) if warm else None,
+                          progress=progress)
+    if warm and steady.solution is not None and steady.settled:
+        _remember(circuit, vscale, steady.solution)
     w = steady.final.waves
     target = mx.mean(w.time, w.v(circuit.output), steady.final.tstop - MEASURE_PERIODS * circuit.period,
                      steady.final.tstop)
     start_circuit = build_circuit(design, phase_deg=design.simulation.switch_on_phase, vscale=vscale, mode="start")
-    start = switch_on(eng, design, start_circuit, target=target if target > 0 else None)
+    start = switch_on(eng, design, start_circuit, steady.steps, target=target if target > 0 else None,
+                      progress=progress)
     keyed = None
     if design.keyed:
         mean_circuit = build_circuit(design, phase_deg=0.0, vscale=vscale, mode="mean")
-        mean = steady_state(eng, design, mean_circuit, vscale)
+        mean = steady_state(eng, design, mean_circuit, vscale, progress=progress)
         keyed_circuit = build_circuit(design, phase_deg=0.0, vscale=vscale, mode="keyed")
         cycle = max(keying_drive(ld).period or 0.0 for ld in design.keyed)
-        keyed = keyed_steady(eng, design, keyed_circuit, end_state(mean_circuit, mean.final.waves), cycle)
-        keyed.circuit = keyed_circuit  # type: ignore[attr-defined]
+        keyed = keyed_steady(eng, design, keyed_circuit, end_state(mean_circuit, mean.final.waves), cycle,
+                             steady.steps)
     result = figures(design, circuit, steady, start, start_circuit, keyed)
+    result.warnings[:0] = early
     if design.regulator is not None and regulation:
         _regulation(eng, design, vscale, result)
     return result
@@ -398,7 +459,8 @@ def _battery_figures(design: Design, circuit: Circuit, w: Waveforms, window: tup
 def _keyed_figures(design: Design, keyed: KeyedRun, m: dict[str, float], warnings: list[str]) -> None:
     """Sag, recovery and overshoot of the output under steady keying (the first keyed load)."""
     ld = design.keyed[0]
-    circuit: Circuit = keyed.circuit  # type: ignore[attr-defined]
+    circuit = keyed.circuit
+    assert circuit is not None
     run = keyed.run
     w = run.waves
     t = w.time + run.offset
@@ -605,25 +667,25 @@ def measure_lines(circuit: Circuit, t0: float, t1: float) -> list[str]:
 
 def steady_deck(result: RunResult) -> str:
     """The final steady-state deck with .meas lines: what `simkit netlist` prints."""
-    from simkit.analysis.steady import transient
     from simkit.netlist.circuit import render
 
     run = result.steady.final
     t0, t1 = result.window
     header = [
         f"steady-state run of {result.design.title}",
-        f"initial conditions: the state after {result.steady.settle_time - run.tstop:.6g} s of "
-        "settling from the closed-form estimate",
-        f"figures over the last {MEASURE_PERIODS} periods, from {t0:.6g} s to {t1:.6g} s",
+        f"initial conditions: the periodic state ({result.steady.method}, {result.steady.settle_time:.6g} s "
+        "simulated from the closed-form estimate)",
+        f"figures over the last {MEASURE_PERIODS} period(s), from {t0:.6g} s to {t1:.6g} s",
     ]
-    tran = transient(result.design, result.circuit, run.tstop, safe=run.retried)
-    return render(result.circuit, tran, run.ics, measure_lines(result.circuit, t0, t1), header)
+    tran = transient(result.design, result.circuit, run.tstop, run.steps, safe=run.retried)
+    # The node voltages where the period ended are those of its start (it is periodic): ngspice then
+    # begins from a solved point, and its .meas see the same waveform simkit measured.
+    ics = {**{k: v for k, v in run.ics.items() if not k.startswith("v(")}, **end_nodes(result.circuit, run.waves)}
+    return render(result.circuit, tran, ics, measure_lines(result.circuit, t0, t1), header)
 
 
 def switch_on_deck(result: RunResult) -> str:
     """The switch-on deck (empty capacitors, source from ``switch_on_phase``) with .meas lines."""
-    from simkit.analysis.steady import transient
-    from simkit.netlist.build import build_circuit
     from simkit.netlist.circuit import render
 
     d = result.design
@@ -635,5 +697,5 @@ def switch_on_deck(result: RunResult) -> str:
     meas += [f".meas tran cap_peak_v_{c.name.lower()} MAX v({c.plus},{c.minus})" if c.minus != "0"
              else f".meas tran cap_peak_v_{c.name.lower()} MAX v({c.plus})"
              for c in circuit.capacitors if c.is_part]
-    tran = transient(d, circuit, run.deck_span or run.tstop, safe=run.retried)
+    tran = transient(d, circuit, run.deck_span or run.tstop, run.steps, safe=run.retried)
     return render(circuit, tran, run.ics, meas, header)

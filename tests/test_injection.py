@@ -318,7 +318,8 @@ FIELDS: list[Field] = [
     Field("spread.distribution", BRIDGE_TOML + "[spread]\n#\n", "#\n", "distribution = {v}\n", "normal"),
     *(Field(f"simulation.{k}", BRIDGE_TOML + "[simulation]\n#\n", "#\n", f"{k} = {{v}}\n", good)
       for k, good in (("switch_on_phase", "90"), ("steps_per_period", "1000"), ("settle_tolerance", "1e-4"),
-                      ("max_settle_time", "8"), ("switch_on_time", "200m"), ("reltol", "1e-4"))),
+                      ("max_settle_time", "8"), ("switch_on_time", "200m"), ("reltol", "1e-4"),
+                      ("max_points", "1e6"))),
 ]
 
 #: Free text: these may be accepted, and then must be harmless.

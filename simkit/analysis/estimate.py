@@ -94,7 +94,9 @@ def estimate_state(design: Design, circuit: Circuit, vscale: float = 1.0) -> dic
     first = design.filters[0].kind if design.filters else None
     choke_input = first == "l" and topo in ("half-wave", "centre-tap", "bridge")
     n_path = 2 if topo == "bridge" else 1
-    rs = s.resistance
+    # Leakage inductance limits the charging current like a resistance of about its reactance (an
+    # estimate only: it sets where Newton starts, never a figure).
+    rs = math.hypot(s.resistance, 2 * math.pi * f * s.inductance)
     reservoir = None
     if topo in ("half-wave", "centre-tap", "bridge") and first == "c":
         reservoir = design.filters[0].value

@@ -1081,17 +1081,19 @@ def _simulation(rd: _Reader, data: Mapping[str, Any]) -> SimulationOptions:
     d = SimulationOptions()
     phase = rd.value(t, "switch_on_phase", "simulation", "", default=d.switch_on_phase,
                      minimum=-360, maximum=360)
-    steps = rd.integer(t, "steps_per_period", "simulation", d.steps_per_period, 50, 100000)
+    steps = rd.integer(t, "steps_per_period", "simulation", 0, 50, 100000) if "steps_per_period" in t else None
     tol = rd.value(t, "settle_tolerance", "simulation", "", default=d.settle_tolerance,
                    above=0, maximum=0.1)
     max_t = rd.value(t, "max_settle_time", "simulation", "s", above=0, maximum=3600)
     on_t = rd.value(t, "switch_on_time", "simulation", "s", above=0, maximum=3600)
     reltol = rd.value(t, "reltol", "simulation", "", default=d.reltol, minimum=1e-8, maximum=1e-2)
-    assert phase is not None and tol is not None and reltol is not None
+    max_points = rd.value(t, "max_points", "simulation", "", default=d.max_points, minimum=1e4, maximum=1e10)
+    assert phase is not None and tol is not None and reltol is not None and max_points is not None
     if not math.isfinite(phase):
         raise rd.fail("simulation.switch_on_phase", "must be a finite angle in degrees")
     return SimulationOptions(switch_on_phase=phase, steps_per_period=steps, settle_tolerance=tol,
-                             max_settle_time=max_t, switch_on_time=on_t, reltol=reltol)
+                             max_settle_time=max_t, switch_on_time=on_t, reltol=reltol,
+                             max_points=max_points)
 
 
 def design_to_inputs(design: Design) -> dict[str, Any]:

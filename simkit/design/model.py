@@ -339,11 +339,12 @@ class SpreadOptions:
 @dataclass(frozen=True)
 class SimulationOptions:
     switch_on_phase: float = 90.0  # degrees of the source at switch-on
-    steps_per_period: int = 1000  # max time step is period / steps_per_period
+    steps_per_period: int | None = None  # max time step is period / this; None: chosen by accuracy
     settle_tolerance: float = 1e-4  # relative change per period that counts as settled
     max_settle_time: float | None = None  # s; None: 400 periods
     switch_on_time: float | None = None  # s; None: chosen from the circuit's time constants
-    reltol: float = 1e-4
+    reltol: float = 1e-5
+    max_points: float = 2e7  # refuse a run whose estimated time points exceed this
 
 
 @dataclass(frozen=True)

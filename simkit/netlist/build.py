@@ -126,7 +126,7 @@ class _Builder:
             node = plus
         if node != plus:  # neither R nor L: a 0 ohm link keeps the node names stable
             self.c.add(Element(f"RW{index}", (node, plus), spice(1e-6), comment="winding link (no resistance given)"))
-        self.c.windings.append(WindingRef(name, s.vrms * self.vscale, plus, minus))
+        self.c.windings.append(WindingRef(name, s.vrms * self.vscale, plus, minus, emf))
         if s.inductance > 0:
             self.snubber(plus, minus, s.inductance, f"SW{index}")
 
@@ -401,6 +401,7 @@ class _Builder:
                 self.c.add(Element("BGLOW", ("g1", "0"), expr, comment="maintaining voltage and dynamic resistance"))
                 self.c.add(Element("RGLOW", ("g1", "0"), "1G", comment="keeps the node defined while unstruck"))
                 self.c.models.append(f".model SWGLOW SW(vt={spice(vt)} vh={spice(vh)} ron=1 roff=1e12)")
+                self.c.hidden_state = True  # struck or not is not a capacitor voltage: no restart sets it
             return
         z = reg.zener
         dev = reg.device
@@ -551,5 +552,5 @@ def _rename(c: Circuit, old: str, new: str) -> None:
     ]
     c.inductors = [IndRef(x.name, m(x.a), m(x.b), x.value, x.dcr, x.role) for x in c.inductors]
     c.resistors = [ResRef(x.name, m(x.a), m(x.b), x.value, x.role) for x in c.resistors]
-    c.windings = [WindingRef(w.name, w.vrms, m(w.plus), m(w.minus)) for w in c.windings]
+    c.windings = [WindingRef(w.name, w.vrms, m(w.plus), m(w.minus), m(w.emf)) for w in c.windings]
     c.section_nodes = [m(n) for n in c.section_nodes]

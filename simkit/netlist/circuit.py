@@ -29,7 +29,7 @@ class Element:
         value = self.drive.pwl(offset, span) if self.drive is not None else self.value
         use = self.ic if ic is None else ic
         if use is not None:
-            value += f" IC={spice(use)}"
+            value += f" IC={spice(use, 15)}"  # full precision: Newton steps are far below 7 digits
         line = " ".join((self.name, *self.nodes, value))
         return f"{line}    $ {self.comment}" if self.comment else line
 
@@ -96,6 +96,7 @@ class WindingRef:
     vrms: float  # open-circuit RMS, V
     plus: str  # terminal nodes after the series impedance
     minus: str
+    emf: str = ""  # the EMF's own + node (before the series impedance); its power is v(emf, minus) * -i(name)
 
 
 @dataclass
@@ -119,6 +120,7 @@ class Circuit:
     battery_nodes: dict[str, str] = field(default_factory=dict)  # "vt", "ib", "pin", "pout" when modelled
     section_nodes: list[str] = field(default_factory=list)  # node after each filter section
     regulator: dict[str, str] = field(default_factory=dict)  # its nodes and sense sources, when there is one
+    hidden_state: bool = False  # a part remembers more than its C and L (a switch with hysteresis)
 
     @property
     def load_sense(self) -> str | None:
@@ -185,7 +187,8 @@ def render(
     ----------
     ics : dict, optional
         Initial conditions by element name (V for capacitors, A for inductors); missing
-        state elements start at their own ``ic`` (zero by default).
+        state elements start at their own ``ic`` (zero by default).  Keys ``v(node)`` give
+        node voltages at the start (``.ic`` lines): where the previous span ended.
     meas : list of str, optional
         ``.meas`` lines to append.
     offset : float
@@ -206,6 +209,11 @@ def render(
         else:
             lines.append(e.render(offset=offset, span=tran.tstop))
     lines.extend(circuit.models)
+    # Node voltages where the last span ended: with ``uic`` ngspice starts every other node at 0 V,
+    # and a restart mid-run (a load at its knee, a zener) may then fail to converge at t = 0.
+    nodes = sorted((k[2:-1], v) for k, v in ics.items() if k.startswith("v(") and k.endswith(")"))
+    for i in range(0, len(nodes), 6):
+        lines.append(".ic " + " ".join(f"v({n})={spice(v, 15)}" for n, v in nodes[i:i + 6]))
     opts = [f"reltol={spice(tran.reltol)}", f"abstol={spice(tran.abstol)}", f"vntol={spice(tran.vntol)}",
             f"method={tran.method}", *tran.extra_options]
     lines.append(".options " + " ".join(opts))

@@ -249,13 +249,20 @@ def _restore_sigterm(old: Any) -> None:
 # --- sweep -------------------------------------------------------------------------------------
 
 
-def with_check(opts: RunOptions, check: bool) -> RunOptions:
-    """The options with each point also checked (``--check``), unless a custom evaluation is set."""
+def with_check(opts: RunOptions, check: bool, kind: str = "sweep") -> RunOptions:
+    """The options with each point also checked (``--check``), unless a custom evaluation is set.
+
+    A spread's runs start from the closed-form estimate (repeatable to the last digit); a sweep's
+    points from their nearest solved neighbour (faster)."""
     from dataclasses import replace
 
-    from simkit.sweep.worker import simulate_and_check
+    from simkit.sweep import worker
 
-    return replace(opts, evaluate=simulate_and_check) if check and opts.evaluate is simulate_point else opts
+    if opts.evaluate is not simulate_point:
+        return opts
+    if kind == "spread":
+        return replace(opts, evaluate=worker.simulate_draw_and_check if check else worker.simulate_draw)
+    return replace(opts, evaluate=worker.simulate_and_check) if check else opts
 
 
 def run_sweep(design_file: str | Path, varies: Sequence[str], opts: RunOptions, paired: bool = False,

@@ -204,7 +204,7 @@ def run_spread(design_file: str | Path, runs: int, seed: int, opts: RunOptions,
 
     from simkit.sweep.report import spread_report_files
 
-    return execute("spread", header, identity, [t.path for t in tols], points, with_check(opts, check),
+    return execute("spread", header, identity, [t.path for t in tols], points, with_check(opts, check, "spread"),
                    spread_report_files() if report else (), finish)
 
 
