@@ -161,8 +161,17 @@ def meas_pair(circuit: Circuit, t0: float, t1: float, suffix: str = "") -> list[
     return lines
 
 
+#: Steps per period of a naive run when the design does not fix them (the coarsest that keeps the
+#: figures of simkit's examples within its tolerances: bench/bench_engine.py measures it).
+NAIVE_STEPS = 200
+
+
+def naive_steps(design: Design) -> int:
+    return design.simulation.steps_per_period or NAIVE_STEPS
+
+
 def naive_deck(design: Design, circuit: Circuit, periods: int) -> str:
-    """The circuit from all-zero state, `.tran` to NAIVE_SPAN, simkit's max step and reltol.
+    """The circuit from all-zero state, `.tran` to NAIVE_SPAN, the naive max step and simkit's reltol.
 
     .meas lines give DC and ripple over the last ``periods`` periods and over the ``periods``
     before them (suffix ``_prev``), to judge whether the run had settled.
@@ -170,7 +179,7 @@ def naive_deck(design: Design, circuit: Circuit, periods: int) -> str:
     from simkit.netlist.circuit import Transient, render
 
     T = circuit.period
-    tran = Transient(tstop=NAIVE_SPAN, tmax=T / design.simulation.steps_per_period, reltol=design.simulation.reltol)
+    tran = Transient(tstop=NAIVE_SPAN, tmax=T / naive_steps(design), reltol=design.simulation.reltol)
     t1 = NAIVE_SPAN
     t0 = t1 - periods * T
     meas = meas_pair(circuit, t0, t1) + meas_pair(circuit, t0 - periods * T, t0, "_prev")
@@ -329,7 +338,7 @@ def bench_design(case: Case, engine: Engine, ngspice: str, simkit_exe: str | Non
     speedup = med(naive_b) / med(whole)
     d["naive"] = {
         "span_s": NAIVE_SPAN,
-        "max_step_s": T / design.simulation.steps_per_period,
+        "max_step_s": T / naive_steps(design),
         "ngspice_b_seconds": naive_b,
         "ngspice_b_time_s": med(naive_b),
         "engine_seconds": naive_eng,

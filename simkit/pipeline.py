@@ -38,7 +38,7 @@ FIGURES: dict[str, tuple[str, str]] = {
     "reservoir_ripple_a": ("A", "RMS ripple current of the reservoir (highest stage) capacitor"),
     "source_rms_a": ("A", "RMS winding current (each half for centre-tap)"),
     "source_va": ("VA", "apparent power drawn from the winding(s)"),
-    "settle_time_s": ("s", "simulated time until steady state was declared"),
+    "settle_time_s": ("s", "simulated time until steady state was declared (every span of the search)"),
     # Start-up run (every design; the warm-up figures only when a load has a warmup).
     "rise_time_s": ("s", "from switch-on until the output first reaches 90 % of vout_dc_v"),
     "cap_peak_warmup_v": ("V", "highest capacitor voltage before the loads draw current (heaters warming)"),

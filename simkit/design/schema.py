@@ -223,9 +223,10 @@ SIMULATION: dict[str, Key] = {
     "steps_per_period": Key("int", "the maximum time step is one period divided by this; by default simkit "
                             "chooses it for accuracy (25 points in the shortest diode conduction pulse, "
                             "200 to 2000 per period)", default="automatic"),
-    "settle_tolerance": Key("", "relative change per period below which the output counts as settled", default="1e-4"),
+    "settle_tolerance": Key("", "how close to the periodic state counts as settled: the distance the slow modes "
+                            "would still move each state variable, relative to its scale", default="1e-4"),
     "max_settle_time": Key(
-        "s", "give up waiting for steady state after this much simulated time", default="400 periods"
+        "s", "give up looking for the steady state after this much simulated time", default="400 periods"
     ),
     "switch_on_time": Key("s", "length of the switch-on run", default="from the circuit's time constants"),
     "reltol": Key("", "ngspice relative tolerance", default="1e-5"),
