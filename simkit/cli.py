@@ -12,7 +12,7 @@ from typing import Any
 import click
 
 from simkit import __version__
-from simkit.errors import SimkitError, UsageError
+from simkit.errors import SimkitError, UsageError, shown
 
 SET_HELP = "Override one design value, e.g. --set filter.0.c=220u (repeatable)."
 
@@ -319,6 +319,11 @@ def examples_dir() -> Path:
     return Path(str(resources.files("simkit") / "examples"))
 
 
+def _clipped(text: str, limit: int = 600) -> str:
+    """Each line of a message at most ``limit`` characters (user text can be very long)."""
+    return "\n".join(shown(line, limit) for line in text.splitlines())
+
+
 def main(argv: list[str] | None = None) -> None:
     """Console entry point: maps every error to its exit code, never a traceback for user errors."""
     try:
@@ -334,7 +339,7 @@ def main(argv: list[str] | None = None) -> None:
         click.echo("simkit: interrupted", err=True)
         sys.exit(130)
     except SimkitError as exc:
-        click.echo(f"simkit: error: {exc}", err=True)
+        click.echo(f"simkit: error: {_clipped(str(exc))}", err=True)
         sys.exit(exc.exit_code)
     except KeyboardInterrupt:
         click.echo("simkit: interrupted", err=True)

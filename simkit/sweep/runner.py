@@ -84,9 +84,12 @@ class _Terminated(Exception):
 
 
 def design_digest(path: str | Path) -> str:
+    from simkit.design.loader import read_design_bytes
+    from simkit.errors import DesignError
+
     try:
-        return hashlib.sha256(Path(path).read_bytes()).hexdigest()
-    except OSError:
+        return hashlib.sha256(read_design_bytes(path)).hexdigest()
+    except DesignError:
         return ""
 
 
