@@ -48,6 +48,12 @@ class UsageError(SimkitError):
     exit_code = 2
 
 
+class OutputError(UsageError):
+    """A result file or folder cannot be written: a read-only or full disk, a missing folder, a
+    symbolic link or special file where a result should go.  The user's environment, not a bug of
+    simkit: exit code 2, and the message names the path."""
+
+
 class SimulationError(SimkitError):
     """ngspice could not complete a run.  Exit code 3.
 

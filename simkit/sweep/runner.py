@@ -119,15 +119,16 @@ def execute(kind: str, header: dict[str, Any], identity: dict[str, Any], inputs:
         (a spread's summary) and may write further files.
     """
     stream = opts.stream if opts.stream is not None else sys.stderr
-    out = OutputDir(opts.out, force=opts.force)
-    names = [f"{kind}.csv", f"{kind}.json", *outputs]
-    out.check(names)
-    journal = open_journal(out.path / f"{kind}.journal", {"kind": kind, "simkit": __version__, **identity}, opts.force)
-    t_start = time.monotonic()
-    try:
-        return _execute(kind, header, inputs, points, opts, out, journal, stream, finish, t_start, names)
-    finally:
-        journal.close()
+    with OutputDir(opts.out, force=opts.force) as out:  # locked for the whole run: one writer per folder
+        names = [f"{kind}.csv", f"{kind}.json", *outputs]
+        out.check(names)
+        journal = open_journal(out.path / f"{kind}.journal", {"kind": kind, "simkit": __version__, **identity},
+                               opts.force)
+        t_start = time.monotonic()
+        try:
+            return _execute(kind, header, inputs, points, opts, out, journal, stream, finish, t_start, names)
+        finally:
+            journal.close()
 
 
 def _entry(point: Point, result: dict[str, Any], attempts: int) -> dict[str, Any]:
