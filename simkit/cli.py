@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import contextlib
 import json
+import math
 import os
 import sys
 from importlib import resources
@@ -237,6 +238,12 @@ def _many_opts(out: str, jobs: int | None, scheduler: str | None, timeout: float
 
     if scheduler and jobs:
         raise UsageError("--jobs is for local workers; with --scheduler the cluster's workers run the points")
+    if math.isnan(timeout):  # click's range check lets nan through (every comparison with it is false)
+        raise UsageError("--timeout nan: give a number of seconds, at least 1 (inf: no limit)")
+    if scheduler:
+        from simkit.sweep.cluster import check_address
+
+        check_address(scheduler)
     return RunOptions(out=Path(out), jobs=jobs, scheduler=scheduler, timeout=timeout, force=force,
                       retry_failed=retry_failed)
 

@@ -11,6 +11,7 @@ import os
 import subprocess
 import sys
 import textwrap
+import time
 from pathlib import Path
 
 import pytest
@@ -132,3 +133,72 @@ def test_a_one_femtofarad_cascade_is_refused(tmp_path: Path) -> None:
     with pytest.raises(DesignError, match="must be at least") as info:
         load_design(p)
     assert info.value.key == "rectifier.capacitance"
+
+
+# --- sweeps, spreads and their options --------------------------------------------------------
+
+
+def test_vary_nan_and_inf_are_refused_before_any_journal(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    p = write_design(tmp_path, DESIGN)
+    out = tmp_path / "sw"
+    code, _, err = call(["sweep", str(p), "--vary", "filter.0.c=nan,inf,100u", "--out", str(out)], capsys)
+    assert code == 2
+    assert "not a finite number" in one_line_error(err)
+    assert not (out / "sweep.journal").exists()
+
+
+def test_spread_runs_are_capped_like_sweep_grids(tmp_path: Path) -> None:
+    write_design(tmp_path, DESIGN.replace('c = "100u"', 'c = "100u"\ntolerance = "10%"'))
+    t0 = time.monotonic()
+    proc = simkit_proc("spread", "design.toml", "--runs", "1000000000000", cwd=tmp_path, timeout=60)
+    assert proc.returncode == 2 and "--runs" in one_line_error(proc.stderr)
+    assert time.monotonic() - t0 < 60
+    assert not (tmp_path / "design-spread").exists()
+
+
+@pytest.mark.parametrize("address", ["not a url", "tcp://", "tcp://host:0", "tcp://host:99999", "http://host:80"])
+def test_a_malformed_scheduler_address_is_refused_before_anything(address: str, tmp_path: Path) -> None:
+    write_design(tmp_path, DESIGN)
+    proc = simkit_proc("sweep", "design.toml", "--vary", "load.r=1k,2k", "--scheduler", address, cwd=tmp_path,
+                       timeout=60)
+    assert proc.returncode == 2, proc.stderr
+    assert "tcp://HOST:PORT" in one_line_error(proc.stderr)
+    assert not (tmp_path / "design-sweep").exists()
+
+
+def test_a_scheduler_nobody_answers_is_one_clean_line(tmp_path: Path) -> None:
+    write_design(tmp_path, DESIGN)
+    proc = simkit_proc("sweep", "design.toml", "--vary", "load.r=1k,2k", "--scheduler", "tcp://127.0.0.1:1",
+                       cwd=tmp_path, timeout=120)
+    assert proc.returncode == 2
+    errors = [line for line in proc.stderr.splitlines() if line.startswith("simkit: error:")]
+    assert len(errors) == 1 and "no Dask scheduler answered" in errors[0]
+    assert "Traceback" not in proc.stderr and "Exception ignored" not in proc.stderr
+
+
+def test_timeout_nan_is_refused(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    p = write_design(tmp_path, DESIGN)
+    code, _, err = call(["sweep", str(p), "--vary", "load.r=1k", "--timeout", "nan", "--out", str(tmp_path / "o")],
+                        capsys)
+    assert code == 2 and "--timeout" in err
+
+
+def test_the_ohm_sign_is_a_unit_of_resistance() -> None:
+    from simkit.units import parse_value
+
+    assert parse_value("4.7k\u2126", "ohm") == pytest.approx(4700.0)  # U+2126 OHM SIGN
+    assert parse_value("4.7k\u03a9", "ohm") == pytest.approx(4700.0)  # U+03A9 GREEK CAPITAL LETTER OMEGA
+
+
+def test_one_point_starts_one_worker() -> None:
+    from simkit.sweep.pool import ProcessPool
+    from simkit.sweep.worker import no_prepare
+
+    pool = ProcessPool(jobs=2, evaluate=_echo, prepare=no_prepare)
+    outcomes = list(pool.run([(0, 5)]))
+    assert len(outcomes) == 1 and outcomes[0].result["metrics"] == {"value": 5}
+    assert pool.workers_started == 1
+
+
+def _echo(payload: object) -> dict[str, object]:
+    return {"metrics": {"value": payload}}

@@ -119,6 +119,10 @@ def execute(kind: str, header: dict[str, Any], identity: dict[str, Any], inputs:
         (a spread's summary) and may write further files.
     """
     stream = opts.stream if opts.stream is not None else sys.stderr
+    if opts.scheduler:
+        from simkit.sweep.cluster import check_address
+
+        check_address(opts.scheduler)
     with OutputDir(opts.out, force=opts.force) as out:  # locked for the whole run: one writer per folder
         names = [f"{kind}.csv", f"{kind}.json", *outputs]
         out.check(names)
@@ -223,7 +227,7 @@ def _outcomes(tasks: Sequence[tuple[int, Any]], opts: RunOptions) -> Generator[O
         from simkit.sweep.cluster import cluster_outcomes
 
         return cluster_outcomes(opts.scheduler, tasks, opts.evaluate, opts.prepare)
-    jobs = opts.jobs or default_jobs()
+    jobs = min(opts.jobs or default_jobs(), len(tasks))  # never more workers than points
     pool = ProcessPool(jobs=jobs, evaluate=opts.evaluate, prepare=opts.prepare, timeout=opts.timeout)
     return pool.run(tasks)
 
