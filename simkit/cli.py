@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import contextlib
 import json
+import math
 import os
 import sys
 from importlib import resources
@@ -12,7 +14,7 @@ from typing import Any
 import click
 
 from simkit import __version__
-from simkit.errors import SimkitError, UsageError
+from simkit.errors import SimkitError, UsageError, shown
 
 SET_HELP = "Override one design value, e.g. --set filter.0.c=220u (repeatable)."
 
@@ -52,13 +54,17 @@ def _warn(result: Any) -> None:
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="simkit")
-def cli() -> None:
+@click.pass_context
+def cli(ctx: click.Context) -> None:
     """simkit: predict what a tube equipment's high-voltage supply will do, before building it.
 
     A design file (TOML) describes the winding, rectifier, filter and load; simkit writes
     the SPICE deck, runs ngspice, and reports output voltage, ripple, diode and capacitor
     stress, and the switch-on surge.  See docs/reference.md for every key and figure.
     """
+    from simkit.report.outputs import set_command
+
+    set_command(f"simkit {ctx.invoked_subcommand or ''}".strip())
 
 
 @cli.command()
@@ -78,26 +84,27 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
 
     d = _load(design, overrides)
     vscale = _mains_scale(d, mains)
-    out = None
-    if out_dir:
-        out = OutputDir(out_dir, force=force)
-        out.check(["result.json", "deck.cir", "waveforms.png"])
-    result = _simulate(d, vscale)
-    if vscale != 1.0:
-        result.warnings.insert(0, f"simulated at {mains} mains: the source EMF x {vscale:g}")
-    _warn(result)
-    doc = result.to_json()
-    if as_json:
-        click.echo(json.dumps(doc, indent=2))
-    else:
-        click.echo(run_table(result), nl=False)
-    if out is not None:
-        from simkit.report.plots import run_figure_bytes
+    with contextlib.ExitStack() as stack:
+        out = None
+        if out_dir:  # opened (created, locked, proved writable) before the simulation
+            out = stack.enter_context(OutputDir(out_dir, force=force))
+            out.check(["result.json", "deck.cir", "waveforms.png"])
+        result = _simulate(d, vscale)
+        if vscale != 1.0:
+            result.warnings.insert(0, f"simulated at {mains} mains: the source EMF x {vscale:g}")
+        _warn(result)
+        doc = result.to_json()
+        if as_json:
+            click.echo(json.dumps(doc, indent=2))
+        else:
+            click.echo(run_table(result), nl=False)
+        if out is not None:
+            from simkit.report.plots import run_figure_bytes
 
-        out.write("result.json", json.dumps(doc, indent=2) + "\n")
-        out.write("deck.cir", result.deck)
-        out.write("waveforms.png", run_figure_bytes(result))
-        click.echo(f"simkit: wrote result.json, deck.cir and waveforms.png in {out.path}", err=True)
+            out.write("result.json", json.dumps(doc, indent=2) + "\n")
+            out.write("deck.cir", result.deck)
+            out.write("waveforms.png", run_figure_bytes(result))
+            click.echo(f"simkit: wrote result.json, deck.cir and waveforms.png in {out.path}", err=True)
 
 
 @cli.command()
@@ -108,17 +115,21 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
 @click.option("--force", is_flag=True, help="With -o: replace an existing file.")
 def netlist(design: str, overrides: tuple[str, ...], output: str | None, force: bool) -> None:
     """Print the SPICE deck of the steady-state run, with .meas lines for ngspice -b."""
+    from simkit.report.outputs import PendingFile
+
     d = _load(design, overrides)
-    if output and Path(output).exists() and not force:
-        raise UsageError(f"{output}: exists; choose another name or pass --force")
-    result = _simulate(d)
-    _warn(result)
-    deck = result.deck
-    if output:
-        Path(output).write_text(deck, "utf-8")
-        click.echo(f"simkit: wrote {output}", err=True)
-    else:
-        click.echo(deck, nl=False)
+    with contextlib.ExitStack() as stack:
+        # The file is checked and reserved before the simulation: a folder that cannot be written
+        # fails now, not after it.
+        target = stack.enter_context(PendingFile(output, force=force)) if output else None
+        result = _simulate(d)
+        _warn(result)
+        deck = result.deck
+        if target is not None:
+            target.commit(deck)
+            click.echo(f"simkit: wrote {output}", err=True)
+        else:
+            click.echo(deck, nl=False)
 
 
 @cli.command()
@@ -162,23 +173,24 @@ def demo(out_dir: str, force: bool) -> None:
 def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: bool) -> None:
     """Write a report for documents: report.md, a self-contained report.html, the schematic,
     the verdicts of the stress checks, the plots (PNG and SVG) and the deck."""
+    from simkit.design.loader import read_design_text
     from simkit.report.design_report import default_out_dir, run_checks, write_report
     from simkit.report.outputs import OutputDir
 
     d = _load(design, overrides)
-    out = OutputDir(out_dir or default_out_dir(design), force=force)
-    out.check(["report.md", "report.html"])
-    result = _simulate(d)
-    _warn(result)
-    checks, check_error = run_checks(d)
-    if check_error:
-        click.echo(f"simkit: warning: the stress checks could not be completed: {check_error}", err=True)
-    names = write_report(result, out, Path(design).read_text("utf-8"), Path(design).name, overrides, checks,
-                         check_error)
-    images = sum(1 for n in names if n.endswith(".png"))
-    click.echo(f"simkit: wrote report.md, report.html, {images} figures (PNG and SVG) and deck.cir in {out.path}",
-               err=True)
-    click.echo(str(out.path / "report.html"))
+    text = read_design_text(design)  # the file as written, for the appendix (read once, safely)
+    with OutputDir(out_dir or default_out_dir(design), force=force) as out:
+        out.check(["report.md", "report.html"])
+        result = _simulate(d)
+        _warn(result)
+        checks, check_error = run_checks(d)
+        if check_error:
+            click.echo(f"simkit: warning: the stress checks could not be completed: {check_error}", err=True)
+        names = write_report(result, out, text, Path(design).name, overrides, checks, check_error)
+        images = sum(1 for n in names if n.endswith(".png"))
+        click.echo(f"simkit: wrote report.md, report.html, {images} figures (PNG and SVG) and deck.cir in "
+                   f"{out.path}", err=True)
+        click.echo(str(out.path / "report.html"))
 
 
 @cli.command()
@@ -196,12 +208,11 @@ def parts(name: str | None) -> None:
               default="bridge", show_default=True)
 def new(file: str, topology: str) -> None:
     """Write a starting design file (never over an existing file)."""
+    from simkit.report.outputs import PendingFile
     from simkit.templates import template
 
-    p = Path(file)
-    if p.exists():
-        raise UsageError(f"{file}: exists; simkit new never overwrites a file")
-    p.write_text(template(topology), "utf-8")
+    with PendingFile(file, exclusive=True) as target:
+        target.commit(template(topology))
     click.echo(f"simkit: wrote {file} ({topology}); edit it, then: simkit run {file}", err=True)
 
 
@@ -227,6 +238,12 @@ def _many_opts(out: str, jobs: int | None, scheduler: str | None, timeout: float
 
     if scheduler and jobs:
         raise UsageError("--jobs is for local workers; with --scheduler the cluster's workers run the points")
+    if math.isnan(timeout):  # click's range check lets nan through (every comparison with it is false)
+        raise UsageError("--timeout nan: give a number of seconds, at least 1 (inf: no limit)")
+    if scheduler:
+        from simkit.sweep.cluster import check_address
+
+        check_address(scheduler)
     return RunOptions(out=Path(out), jobs=jobs, scheduler=scheduler, timeout=timeout, force=force,
                       retry_failed=retry_failed)
 
@@ -319,6 +336,11 @@ def examples_dir() -> Path:
     return Path(str(resources.files("simkit") / "examples"))
 
 
+def _clipped(text: str, limit: int = 600) -> str:
+    """Each line of a message at most ``limit`` characters (user text can be very long)."""
+    return "\n".join(shown(line, limit) for line in text.splitlines())
+
+
 def main(argv: list[str] | None = None) -> None:
     """Console entry point: maps every error to its exit code, never a traceback for user errors."""
     try:
@@ -334,13 +356,17 @@ def main(argv: list[str] | None = None) -> None:
         click.echo("simkit: interrupted", err=True)
         sys.exit(130)
     except SimkitError as exc:
-        click.echo(f"simkit: error: {exc}", err=True)
+        click.echo(f"simkit: error: {_clipped(str(exc))}", err=True)
         sys.exit(exc.exit_code)
     except KeyboardInterrupt:
         click.echo("simkit: interrupted", err=True)
         sys.exit(130)
     except BrokenPipeError:
         sys.exit(0)
+    except OSError as exc:  # the machine's fault (a full disk, a read-only folder), not a bug: exit 2
+        where = f"{shown(str(exc.filename))}: " if exc.filename else ""
+        click.echo(f"simkit: error: {where}{exc.strerror or exc}", err=True)
+        sys.exit(2)
     except Exception as exc:  # a bug of ours, not the user's mistake
         if os.environ.get("SIMKIT_DEBUG"):
             raise

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import json
 from collections.abc import Callable
 from importlib import resources
@@ -70,9 +71,15 @@ def example_files() -> list[Path]:
 
 def run_demo(out: Path, force: bool = False, echo: Callable[[str], None] = print) -> list[dict]:
     files = example_files()
-    top = OutputDir(out, force=force)
+    with contextlib.ExitStack() as stack:  # every folder locked (and proved writable) before the first run
+        top = stack.enter_context(OutputDir(out, force=force))
+        folders = {f: stack.enter_context(top.subfolder(f.stem)) for f in files}
+        return _run_demo(files, top, folders, echo)
+
+
+def _run_demo(files: list[Path], top: OutputDir, folders: dict[Path, OutputDir],
+              echo: Callable[[str], None]) -> list[dict]:
     names = ["README.md"]
-    folders = {f: OutputDir(out / f.stem, force=force) for f in files}
     top.check(names)
     for folder in folders.values():
         folder.check(["design.toml", "result.json", "deck.cir", "waveforms.png", *report_files()])

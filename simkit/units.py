@@ -46,7 +46,7 @@ PREFIXES: dict[str, float] = {
 UNIT_SYMBOLS: dict[str, tuple[str, ...]] = {
     "V": ("V", "v", "Vrms", "VAC", "Vac", "Vdc", "VDC"),
     "A": ("A",),
-    "ohm": ("Ω", "Ω", "ohm", "ohms", "Ohm", "Ohms", "R"),
+    "ohm": ("Ω", "Ω", "ohm", "ohms", "Ohm", "Ohms", "R"),  # Greek capital omega, then the ohm sign
     "F": ("F",),
     "H": ("H",),
     "Hz": ("Hz", "hz", "HZ"),

@@ -9,6 +9,8 @@ from __future__ import annotations
 import copy
 import difflib
 import math
+import os
+import stat
 import sys
 from collections.abc import Mapping, Sequence
 from dataclasses import replace
@@ -52,6 +54,17 @@ from simkit.parts import diodes, regulators, tubes
 from simkit.units import UnitError, parse_percent, parse_value
 
 MAX_TITLE = 200
+#: Design and parts files larger than this are refused (a design is a few kilobytes).
+MAX_DESIGN_BYTES = 1_000_000
+#: Tables and lists nested deeper than this are not a design (the deepest real one has 4 levels).
+MAX_DEPTH = 32
+# Lower bounds that refuse absurd designs, whose figures would be denormal noise (issue 14):
+#: Source EMF, V RMS: below a volt a rectifier diode hardly conducts.
+MIN_EMF = 1.0
+#: Capacitors, F: below 10 pF a part is smaller than the wiring's own capacitance.
+MIN_CAPACITANCE = 10e-12
+#: Vacuum-diode perveance, A/V^1.5: thousands of times below the library's rectifier tubes.
+MIN_PERVEANCE = 1e-7
 
 
 # --- entry points ----------------------------------------------------------------------
@@ -74,32 +87,98 @@ def load_design(path: str | Path, overrides: Sequence[str] = ()) -> Design:
 
 def read_toml(path: str | Path) -> dict[str, Any]:
     """Read a TOML file into a dictionary, turning every failure into a DesignError."""
-    p = Path(path)
+    return parse_toml_text(read_design_text(path), str(path))
+
+
+def read_design_text(path: str | Path) -> str:
+    """The text of a design (or parts) file, read safely (see :func:`read_design_bytes`)."""
     name = str(path)
-    try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise DesignError("no such file", file=name) from None
-    except IsADirectoryError:
-        raise DesignError("is a folder, expected a TOML design file", file=name) from None
-    except OSError as exc:
-        raise DesignError(f"cannot read the file: {exc.strerror}", file=name) from None
+    raw = read_design_bytes(path)
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
         line = raw[: exc.start].count(b"\n") + 1
         raise DesignError(f"not UTF-8 text (bad byte on line {line})", file=name) from None
     # Some editors start UTF-8 files with a byte-order mark; TOML itself does not allow one.
-    return parse_toml_text(text.removeprefix("\ufeff"), name)
+    return text.removeprefix("\ufeff")
+
+
+def read_design_bytes(path: str | Path) -> bytes:
+    """The bytes of a design (or parts) file, read safely.
+
+    Only a regular file of at most :data:`MAX_DESIGN_BYTES` is read: a FIFO, a device such as
+    ``/dev/zero`` or a folder is refused before anything is read (the file is opened without
+    blocking, then looked at), so nothing can hang simkit or fill its memory.
+    """
+    name = str(path)
+    if not name:
+        raise DesignError("the path is empty; give the name of a TOML design file", file="''")
+    if not name.isprintable():
+        raise DesignError("the file name holds a line break or control character; rename the file", file=name)
+    try:
+        fd = os.open(name, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_CLOEXEC", 0))
+    except FileNotFoundError:
+        raise DesignError("no such file", file=name) from None
+    except IsADirectoryError:
+        raise DesignError("is a folder, expected a TOML design file", file=name) from None
+    except OSError as exc:
+        raise DesignError(f"cannot read the file: {exc.strerror or exc}", file=name) from None
+    try:
+        st = os.fstat(fd)
+        if stat.S_ISDIR(st.st_mode):
+            raise DesignError("is a folder, expected a TOML design file", file=name)
+        if not stat.S_ISREG(st.st_mode):
+            what = "a FIFO (named pipe)" if stat.S_ISFIFO(st.st_mode) else \
+                "a device" if stat.S_ISCHR(st.st_mode) or stat.S_ISBLK(st.st_mode) else "not a regular file"
+            raise DesignError(f"is {what}; a design file must be a regular file", file=name)
+        if st.st_size > MAX_DESIGN_BYTES:
+            raise DesignError(f"is {st.st_size} bytes; a design file may hold at most {MAX_DESIGN_BYTES} bytes",
+                              file=name)
+        chunks: list[bytes] = []
+        size = 0
+        while size <= MAX_DESIGN_BYTES:
+            block = os.read(fd, 65536)
+            if not block:
+                break
+            chunks.append(block)
+            size += len(block)
+        if size > MAX_DESIGN_BYTES:  # it grew while being read
+            raise DesignError(f"holds more than {MAX_DESIGN_BYTES} bytes, more than a design file may", file=name)
+        return b"".join(chunks)
+    except OSError as exc:
+        raise DesignError(f"cannot read the file: {exc.strerror or exc}", file=name) from None
+    finally:
+        os.close(fd)
 
 
 def parse_toml_text(text: str, name: str = "<design>") -> dict[str, Any]:
     try:
-        return tomllib.loads(text)
+        doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise DesignError(f"TOML syntax error: {exc}", file=name) from None
     except RecursionError:  # tomllib recurses once per level of nested arrays or tables
         raise DesignError("TOML nested too deeply to be a design file", file=name) from None
+    except ValueError as exc:  # e.g. a whole number of thousands of digits (Python's conversion limit)
+        what = "a whole number has too many digits" if "digits" in str(exc) else "a value cannot be read"
+        raise DesignError(f"TOML value out of range: {what}", file=name) from None
+    if _depth(doc) > MAX_DEPTH:
+        raise DesignError(f"TOML nested too deeply to be a design file (more than {MAX_DEPTH} levels of tables "
+                          "or lists)", file=name)
+    return doc
+
+
+def _depth(value: Any) -> int:
+    """How deeply tables and lists nest (without recursion: the input may be hostile)."""
+    deepest = 0
+    stack = [(value, 1)]
+    while stack:
+        node, level = stack.pop()
+        deepest = max(deepest, level)
+        if level > MAX_DEPTH:
+            break
+        children = node.values() if isinstance(node, dict) else node if isinstance(node, list) else ()
+        stack.extend((child, level + 1) for child in children if isinstance(child, (dict, list)))
+    return deepest
 
 
 def apply_overrides(data: dict[str, Any], overrides: Sequence[str], file: str) -> dict[str, Any]:
@@ -120,14 +199,18 @@ def apply_overrides(data: dict[str, Any], overrides: Sequence[str], file: str) -
         parts = path.split(".")
         if not path or any(not p for p in parts):
             raise DesignError(f"--set {item!r}: empty part in the path", file=file)
+        if len(parts) > MAX_DEPTH:
+            raise DesignError(f"--set {path}: a path of {len(parts)} parts is deeper than any design key", file=file)
         _set_path(out, parts, value, file, path)
+    if overrides and _depth(out) > MAX_DEPTH:
+        raise DesignError(f"--set: the value nests tables or lists more than {MAX_DEPTH} levels deep", file=file)
     return out
 
 
 def _override_value(text: str) -> Any:
     try:
         doc = tomllib.loads(f"v = {text}")
-    except tomllib.TOMLDecodeError:
+    except (ValueError, RecursionError):  # not TOML (or a number of thousands of digits): plain text
         return text
     # "250\nx = 1" parses as two keys; taking v alone would silently drop the rest.
     return doc["v"] if list(doc) == ["v"] else text
@@ -412,7 +495,7 @@ def _source(rd: _Reader, data: Mapping[str, Any], topology: str) -> Source:
                   'this is kind "sine" (set kind = "transformer" or "inverter")')
         rd.need(t, "vrms", "source", "the open-circuit RMS voltage of the winding, e.g. \"250\"")
         rd.need(t, "resistance", "source", "the series resistance of the winding, e.g. \"25\"")
-        vrms = rd.value(t, "vrms", "source", "V", above=0, maximum=200e3)
+        vrms = rd.value(t, "vrms", "source", "V", above=0, minimum=MIN_EMF, maximum=200e3)
         res = rd.value(t, "resistance", "source", "ohm", minimum=0, maximum=1e9)
         ind = rd.value(t, "inductance", "source", "H", default=0.0, minimum=0, maximum=1e3)
         assert vrms is not None and res is not None and ind is not None
@@ -439,8 +522,8 @@ def _transformer(rd: _Reader, t: Mapping[str, Any], freq: float, tol: float | No
                      ("secondary_vrms", 'the rated secondary voltage, e.g. "600"'),
                      ("rated_current", 'the rated secondary current, e.g. "150m"')):
         rd.need(t, key, path, why)
-    vp = rd.value(t, "primary_vrms", path, "V", above=0, maximum=100e3)
-    vs = rd.value(t, "secondary_vrms", path, "V", above=0, maximum=200e3)
+    vp = rd.value(t, "primary_vrms", path, "V", above=0, minimum=MIN_EMF, maximum=100e3)
+    vs = rd.value(t, "secondary_vrms", path, "V", above=0, minimum=MIN_EMF, maximum=200e3)
     ir = rd.value(t, "rated_current", path, "A", above=0, maximum=1e3)
     leak = rd.value(t, "leakage_inductance", path, "H", default=0.0, minimum=0, maximum=1e3)
     ct = rd.boolean(t, "centre_tap", path, False)
@@ -502,7 +585,7 @@ def _inverter(rd: _Reader, t: Mapping[str, Any], freq: float, tol: float | None)
     rd.need(t, "vrms", path, 'the inverter\'s nominal output RMS voltage, e.g. "230"')
     rd.need(t, "rated_power", path, 'the inverter\'s rated output power, e.g. "150"')
     wave = rd.choice(t, "waveform", path, ("sine", "modified-sine", "square"), default="sine")
-    vrms = rd.value(t, "vrms", path, "V", above=0, maximum=100e3)
+    vrms = rd.value(t, "vrms", path, "V", above=0, minimum=MIN_EMF, maximum=100e3)
     rout = rd.value(t, "output_resistance", path, "ohm", default=0.0, minimum=0, maximum=1e6)
     ind = rd.value(t, "inductance", path, "H", default=0.0, minimum=0, maximum=1e3)
     prated = rd.value(t, "rated_power", path, "W", above=0, maximum=1e6)
@@ -602,7 +685,7 @@ def _rectifier(rd: _Reader, data: Mapping[str, Any]) -> Rectifier:
         if "capacitance" not in t:
             raise rd.fail("rectifier.capacitance",
                           f'missing key: a {topology} needs its stage capacitance, e.g. "100u"')
-        cap = rd.value(t, "capacitance", "rectifier", "F", above=0, maximum=10.0)
+        cap = rd.value(t, "capacitance", "rectifier", "F", above=0, minimum=MIN_CAPACITANCE, maximum=10.0)
     elif "capacitance" in t:
         raise rd.fail(
             "rectifier.capacitance",
@@ -677,7 +760,7 @@ def _diode(rd: _Reader, spec: Any, key: str = "rectifier.diode") -> DiodeModel:
         rd.refuse(spec, ("is", "n", "rs", "bv", "tt", "cjo", "vrrm", "ifav", "ifsm", "i2t"), key,
                   "belongs to a silicon diode; a vacuum plate takes perveance (and warmup, piv, peak_current)")
         rd.need(spec, "perveance", key, 'the plate perveance in A/V^1.5, e.g. "1m" (i = P v^1.5)')
-        perv = rd.value(spec, "perveance", key, "", above=0, maximum=1.0)
+        perv = rd.value(spec, "perveance", key, "", above=0, minimum=MIN_PERVEANCE, maximum=1.0)
         warm = rd.value(spec, "warmup", key, "s", default=0.0, minimum=0, maximum=600)
         assert perv is not None and warm is not None
         ratings = TubeRatings(piv=rd.value(spec, "piv", key, "V", above=0),
@@ -734,7 +817,8 @@ def _filters(rd: _Reader, data: Mapping[str, Any]) -> list[FilterSection]:
             raise rd.fail(f"{path}.dcr", "dcr belongs to an l section")
         unit = {"c": "F", "l": "H", "r": "ohm"}[kind]
         limit = {"c": 10.0, "l": 1e4, "r": 1e12}[kind]
-        value = rd.value(sec, kind, path, unit, above=0, maximum=limit)
+        value = rd.value(sec, kind, path, unit, above=0, minimum=MIN_CAPACITANCE if kind == "c" else None,
+                         maximum=limit)
         esr = rd.value(sec, "esr", path, "ohm", default=0.0, minimum=0, maximum=1e6)
         dcr = rd.value(sec, "dcr", path, "ohm", default=0.0, minimum=0, maximum=1e9)
         assert value is not None and esr is not None and dcr is not None

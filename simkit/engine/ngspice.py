@@ -1,22 +1,47 @@
 """Run SPICE decks in ngspice's shared library through PySpice; the only module importing PySpice.
 
-One engine per process (threads sharing a libngspice crash, ENGINE-NOTES).  After every
-run the circuit and its plots are removed so hundreds of runs do not grow the process.
-ngspice's own messages are captured and handed back with any failure.
+One engine per process, used by one thread at a time: threads sharing a libngspice crash it, so
+every call into ngspice holds a process-wide lock (a second thread waits for the first).  After
+every run the circuit and its plots are removed so hundreds of runs do not grow the process.
+
+Failures are read from ngspice's state, never from text that came from the design: the deck must
+load, the run must create a new transient plot whose time reaches the stop time, and ngspice must
+not have written an error line to its error stream (lines that merely repeat a line of the deck,
+such as the title, do not count).  ngspice's own messages are handed back with any failure.
+
+ngspice sources a start-up file ``.spiceinit`` from the current folder (or, when there is none,
+from the home folder of the user in the password database) when the library is initialised, and
+such a file can run shell commands.  The engine initialises ngspice inside a private, empty folder
+of its own that holds an empty ``.spiceinit``, so neither the folder simkit was started from nor
+the user's home folder can run anything; the installation's own ``spinit`` (code models) is read
+as usual.
+
+A transient run goes to ngspice's background thread while the calling thread waits: Ctrl-C then
+reaches Python at once, the run is halted (``bg_halt``) and cleaned up, and KeyboardInterrupt goes
+on to the caller.  ngspice's initialisation installs its own SIGINT handler; the engine puts the
+previous one back.
 """
 
 from __future__ import annotations
 
+import contextlib
+import ctypes
 import logging
 import os
 import re
-from collections.abc import Iterable
+import shutil
+import signal
+import tempfile
+import threading
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
 from simkit.errors import EngineMissingError, SimulationError
 
+#: ngspice messages (on its error stream) that mean the run cannot be trusted.
 _FATAL_PATTERNS = (
     re.compile(r"timestep too small", re.I),
     re.compile(r"singular matrix", re.I),
@@ -28,7 +53,14 @@ _FATAL_PATTERNS = (
     re.compile(r"could not find a valid modelname", re.I),
     re.compile(r"too few nodes", re.I),
     re.compile(r"doAnalyses:", re.I),
+    re.compile(r"^\s*error\b", re.I),
 )
+
+#: Seconds to wait for ngspice's background thread to report that it started.
+_START_TIMEOUT = 30.0
+
+#: Process-wide: one thread at a time inside ngspice (re-entrant for the engine's own nesting).
+_LOCK = threading.RLock()
 
 
 @dataclass
@@ -62,31 +94,38 @@ class Waveforms:
 
 
 class Engine:
-    """A libngspice instance: load a deck, run it, copy the vectors out, clean up."""
+    """A libngspice instance: load a deck, run it, copy the vectors out, clean up.
+
+    Every method holds the process-wide engine lock, so threads take turns.
+    """
 
     def __init__(self) -> None:
         logging.getLogger("PySpice").setLevel(logging.CRITICAL)
         _prefer_versioned_library()
         try:
-            from PySpice.Spice.NgSpice.Shared import NgSpiceShared
+            from PySpice.Spice.NgSpice.Shared import NgSpiceShared, ffi
         except Exception as exc:  # pragma: no cover - depends on the installation
             raise EngineMissingError(
                 f"PySpice could not be imported ({exc})",
                 hint="run `make setup`, or pip install PySpice",
             ) from None
-        try:
-            self._ng = NgSpiceShared.new_instance()
-        except (OSError, Exception) as exc:  # cffi raises OSError when the library is missing
-            raise EngineMissingError(
-                f"the ngspice shared library could not be loaded ({exc})",
-                hint="install ngspice and libngspice (Debian/Ubuntu: apt-get install ngspice "
-                "libngspice0 libngspice0-dev), or set NGSPICE_LIBRARY_PATH to libngspice's path",
-            ) from None
+        self._ffi = ffi
+        with _LOCK:
+            try:
+                with _sigint_held(), _sigint_kept(), _private_startup_folder():
+                    self._ng = _shared_class(NgSpiceShared, ffi).new_instance()
+            except (OSError, Exception) as exc:  # cffi raises OSError when the library is missing
+                raise EngineMissingError(
+                    f"the ngspice shared library could not be loaded ({exc})",
+                    hint="install ngspice and libngspice (Debian/Ubuntu: apt-get install ngspice "
+                    "libngspice0 libngspice0-dev), or set NGSPICE_LIBRARY_PATH to libngspice's path",
+                ) from None
         self._lib = self._ng._ngspice_shared
         self.runs = 0
 
     def _command(self, text: str) -> int:
-        return int(self._lib.ngSpice_Command(text.encode("ascii")))
+        with _sigint_held():
+            return int(self._lib.ngSpice_Command(text.encode("ascii")))
 
     def _messages(self) -> str:
         return "\n".join([*self._ng._stdout, *self._ng._stderr])
@@ -102,28 +141,37 @@ class Engine:
             The deck's stop time, s; a run that ends early is a failure.
         save : iterable of str, optional
             Vector names to copy out (default: all).
+
+        Raises
+        ------
+        SimulationError
+            When ngspice could not read the deck or complete the run.
+        KeyboardInterrupt
+            Ctrl-C during the run: ngspice is halted and cleaned up first.
         """
+        with _LOCK:
+            return self._run(deck, tstop, save)
+
+    def _run(self, deck: str, tstop: float, save: Iterable[str] | None) -> Waveforms:
         ng = self._ng
         ng.clear_output()
         self.runs += 1
         try:
-            try:
-                ng.load_circuit(deck)
-            except Exception:
-                raise SimulationError("ngspice could not read the deck", deck=deck,
-                                      log=self._messages()) from None
-            rc = self._command("run")
+            before = set(ng.plot_names)
+            if self._load(deck) != 0:
+                raise SimulationError("ngspice could not read the deck", deck=deck, log=self._messages())
+            rc = self._run_in_background()
             log = self._messages()
-            bad = [p.pattern for p in _FATAL_PATTERNS if p.search(log)]
+            errors = error_lines(ng._stderr, deck)
             names = ng.plot_names
             plot = names[0] if names else ""
-            if rc != 0 or not plot.startswith("tran"):
+            if rc != 0 or not plot.startswith("tran") or plot in before:
                 raise SimulationError("ngspice did not complete the transient run", deck=deck, log=log)
             data = self._copy_vectors(plot, save)
             t = data.pop("time", None)
-            if t is None or len(t) < 2:
+            if t is None or len(t) < 2 or not np.all(np.isfinite(t)):
                 raise SimulationError("ngspice returned no time points", deck=deck, log=log)
-            if t[-1] < tstop * (1 - 1e-5) or bad:
+            if t[-1] < tstop * (1 - 1e-5) or errors:
                 reached = float(t[-1])
                 raise SimulationError(
                     f"the transient run stopped at {reached:.6g} s of {tstop:.6g} s", deck=deck, log=log
@@ -132,13 +180,45 @@ class Engine:
         finally:
             self._cleanup()
 
-    def _copy_vectors(self, plot: str, save: Iterable[str] | None) -> dict[str, np.ndarray]:
-        from PySpice.Spice.NgSpice.Shared import ffi
+    def _load(self, deck: str) -> int:
+        """Hand the deck to ngspice line by line (PySpice's own loader calls any output holding the
+        word "error" a failure, and ngspice echoes the title: so it is not used)."""
+        ffi = self._ffi
+        lines = [line for line in deck.splitlines() if line] + [""]  # ngspice wants an empty last line
+        keep = [ffi.new("char[]", line.encode("utf-8")) for line in lines]
+        array = ffi.new("char *[]", [*keep, ffi.NULL])
+        with _sigint_held():
+            return int(self._lib.ngSpice_Circ(array))
 
+    def _run_in_background(self) -> int:
+        """``bg_run`` and wait in Python, so that Ctrl-C is seen at once; halt ngspice on any exception."""
+        ng = self._ng
+        ng.simkit_started.clear()
+        ng.simkit_done.clear()
+        rc = self._command("bg_run")
+        if rc != 0:
+            return rc
+        try:
+            waited = 0.0
+            while not ng.simkit_done.wait(0.25):
+                waited += 0.25
+                if waited > _START_TIMEOUT and not ng.simkit_started.is_set():
+                    raise SimulationError("ngspice's simulation thread did not start")
+        except BaseException:
+            self._command("bg_halt")
+            raise
+        # The thread has finished; bg_halt joins it (ngspice keeps it until asked).
+        self._command("bg_halt")
+        return 0
+
+    def _copy_vectors(self, plot: str, save: Iterable[str] | None) -> dict[str, np.ndarray]:
+        ffi = self._ffi
         lib = self._lib
         wanted = None if save is None else {s.lower() for s in save} | {"time"}
         out: dict[str, np.ndarray] = {}
         all_vecs = lib.ngSpice_AllVecs(plot.encode("utf8"))
+        if all_vecs == ffi.NULL:
+            return out
         i = 0
         while all_vecs[i] != ffi.NULL:
             name = ffi.string(all_vecs[i]).decode("utf8", "replace")
@@ -155,13 +235,129 @@ class Engine:
 
     def _cleanup(self) -> None:
         # Order matters: breakpoints survive remcirc unless deleted first (ENGINE-NOTES trap 6).
-        self._command("delete all")
-        self._command("destroy all")
-        self._command("remcirc")
-        if self.runs % 50 == 0:
-            from PySpice.Spice.NgSpice.Shared import ffi
+        with _sigint_held():
+            self._command("delete all")
+            self._command("destroy all")
+            self._command("remcirc")
+            if self.runs % 50 == 0:
+                self._lib.ngSpice_Command(self._ffi.NULL)  # free ngspice's command history
 
-            self._lib.ngSpice_Command(ffi.NULL)  # free ngspice's command history
+
+def error_lines(stderr: Iterable[str], deck: str) -> list[str]:
+    """The lines of ngspice's error stream that report a failure, leaving out echoes of the deck.
+
+    ngspice repeats deck lines in its messages (the title, a line it could not read); those are
+    the user's text, not ngspice's verdict, so a line that is (a piece of) a deck line does not
+    count, whatever words it holds.
+
+    >>> error_lines(["* error amplifier", "Error: circuit not parsed."], "* Error amplifier\\nR1 a 0 1k\\n")
+    ['Error: circuit not parsed.']
+    """
+    deck_lines = [_squash(line) for line in deck.splitlines()]
+    deck_lines = [d for d in deck_lines if d]
+    found = []
+    for line in stderr:
+        text = line.strip()
+        if not text or not any(p.search(text) for p in _FATAL_PATTERNS):
+            continue
+        squashed = _squash(text)
+        if any(squashed in d for d in deck_lines):
+            continue  # an echo of the deck
+        found.append(text)
+    return found
+
+
+def _squash(text: str) -> str:
+    """Lower case without white space: ngspice re-spaces and lower-cases the lines it echoes."""
+    return re.sub(r"\s+", "", text).lower()
+
+
+def _shared_class(base: Any, ffi: Any) -> Any:
+    """PySpice's NgSpiceShared with a background-thread callback that tells the engine when a
+    ``bg_run`` starts and ends (PySpice's own returns nothing, which cffi reports as an error)."""
+
+    class _Shared(base):  # type: ignore[misc, valid-type]
+        def __init__(self, *args: Any, **kwargs: Any) -> None:
+            self.simkit_started = threading.Event()
+            self.simkit_done = threading.Event()
+            super().__init__(*args, **kwargs)
+
+        @staticmethod
+        def _background_thread_running(exited: bool, ngspice_id: int, user_data: Any) -> int:
+            self = ffi.from_handle(user_data)
+            (self.simkit_done if exited else self.simkit_started).set()
+            return 0
+
+    return _Shared
+
+
+@contextlib.contextmanager
+def _private_startup_folder() -> Iterator[None]:
+    """Work in a new private folder holding an empty ``.spiceinit`` while ngspice initialises.
+
+    ngspice's shared library sources ``./.spiceinit``, or else ``~/.spiceinit`` from the password
+    database (not $HOME), when it is initialised: an empty one in the current folder shadows both.
+    """
+    folder = tempfile.mkdtemp(prefix="simkit-ngspice-")
+    back: int | None = None
+    cwd: str | None = None
+    try:
+        with open(os.path.join(folder, ".spiceinit"), "x", encoding="ascii"):
+            pass
+        try:
+            back = os.open(".", os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+        except OSError:  # a current folder we may not read: remember its name instead
+            with contextlib.suppress(OSError):
+                cwd = os.getcwd()
+        os.chdir(folder)
+        try:
+            yield
+        finally:
+            if back is not None:
+                os.fchdir(back)
+            elif cwd is not None:
+                os.chdir(cwd)
+    finally:
+        if back is not None:
+            os.close(back)
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+@contextlib.contextmanager
+def _sigint_kept() -> Iterator[None]:
+    """Put back the SIGINT handler that ngspice's initialisation replaces with its own (which
+    would swallow Ctrl-C for the rest of the process)."""
+    saved = None
+    try:
+        libc = ctypes.CDLL(None, use_errno=True)
+        buf = ctypes.create_string_buffer(512)  # larger than any platform's struct sigaction
+        if libc.sigaction(signal.SIGINT, None, buf) == 0:
+            saved = (libc, buf)
+    except (OSError, AttributeError):  # pragma: no cover - no C library to ask
+        saved = None
+    python_handler = signal.getsignal(signal.SIGINT)
+    try:
+        yield
+    finally:
+        if saved is not None:
+            libc, buf = saved
+            libc.sigaction(signal.SIGINT, buf, None)
+        elif threading.current_thread() is threading.main_thread() and python_handler is not None:
+            signal.signal(signal.SIGINT, python_handler)  # pragma: no cover
+
+
+@contextlib.contextmanager
+def _sigint_held() -> Iterator[None]:
+    """Hold Ctrl-C back while ngspice runs Python callbacks on this thread: an interrupt raised
+    inside a callback is lost (cffi can only print it).  It is delivered when the call returns."""
+    if threading.current_thread() is not threading.main_thread() or not hasattr(signal, "pthread_sigmask"):
+        yield
+        return
+    old = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, old)
 
 
 def _prefer_versioned_library() -> None:
@@ -186,8 +382,9 @@ _ENGINE: Engine | None = None
 
 
 def get_engine() -> Engine:
-    """The process's engine, created on first use."""
+    """The process's engine, created on first use (by one thread only)."""
     global _ENGINE
-    if _ENGINE is None:
-        _ENGINE = Engine()
-    return _ENGINE
+    with _LOCK:
+        if _ENGINE is None:
+            _ENGINE = Engine()
+        return _ENGINE

@@ -268,7 +268,7 @@ class Document:
         """The report as GitHub-flavoured Markdown (images beside it)."""
         lines: list[str] = [f"# {_md_text(self.title)}", ""]
         if self.subtitle:
-            lines += [_md_text(self.subtitle), ""]
+            lines += [_md_line(_md_text(self.subtitle)), ""]
         lines += [f"> **HIGH VOLTAGE.** {_md_text(_BANNER)}", ""]
         toc = self._toc()
         if toc:
@@ -331,9 +331,29 @@ _BANNER = ("Lethal voltages and stored charge. This report is a simulation, not 
 
 
 def _md_text(text: str) -> str:
-    """Plain text for Markdown: no HTML, no accidental emphasis or links."""
-    text = text.replace("\\", "\\\\").replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
-    return re.sub(r"([`*_\[\]|#])", r"\\\1", text)
+    """Plain text for Markdown: nothing in it can become markup.
+
+    ``&`` ``<`` ``>`` become entities (no HTML, no autolinks); the characters that make emphasis,
+    links, images, code, tables, headings and strike-through are escaped with a backslash; web
+    and mail addresses cannot turn into links (GitHub's extended autolinks); line breaks become
+    spaces (a new line could start a heading, a list, a fence or a table row).  Other punctuation
+    stays as it is, so the file still reads well as text.
+    """
+    text = re.sub(r"[\r\n\v\f\x85\u2028\u2029]+", " ", text)
+    text = re.sub(r"([\\`*_\[\]|#!~])", r"\\\1", text)
+    text = text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+    text = text.replace("://", ":\\/\\/").replace("@", "\\@")
+    return re.sub(r"(?i)\b(www)\.", r"\1\\.", text)
+
+
+def _md_line(text: str) -> str:
+    """Markdown text that starts a line (a paragraph, a list item, a quoted note): besides the
+    escapes already made, what would start a list, a quote, a thematic break, a heading underline
+    or an indented code block at the start of a line is made plain."""
+    text = text.lstrip(" \t")
+    if re.match(r"[-+=]", text):
+        return "\\" + text
+    return re.sub(r"^([0-9]{1,9})([.)])", r"\1\\\2", text)
 
 
 def _md_inline(text: str, markup: bool) -> str:
@@ -356,12 +376,12 @@ def _md_block(b: Block) -> list[str]:
     if isinstance(b, Heading):
         return [f"{'#' * b.level} {_md_text(b.text)}"]
     if isinstance(b, Paragraph):
-        return [_md_inline(b.text, b.markup)]
+        return [_md_line(_md_inline(b.text, b.markup))]
     if isinstance(b, Bullets):
-        return [f"- {_md_inline(item, b.markup)}" for item in b.items]
+        return [f"- {_md_line(_md_inline(item, b.markup))}" for item in b.items]
     if isinstance(b, Note):
-        lead = "**Caution.** " if b.kind == "caution" else ""
-        return [f"> {lead}{_md_inline(b.text, True)}"]
+        body = _md_inline(b.text, True)
+        return [f"> **Caution.** {body}" if b.kind == "caution" else f"> {_md_line(body)}"]
     if isinstance(b, Table):
         sep = {"l": ":---", "r": "---:", "c": ":---:"}
         lines = ["| " + " | ".join(_md_text(h) for h in b.headers) + " |",
@@ -374,8 +394,12 @@ def _md_block(b: Block) -> list[str]:
         return [f"![{_md_text(b.caption)}]({b.name}.png)", "",
                 f"*Figure {b.number}: {_md_text(b.caption)}* ({links})"]
     if isinstance(b, Code):
-        fence = "````" if "```" in b.text else "```"
-        return [f"{fence}{b.lang}", b.text, fence]
+        # The fence is longer than any run of backticks in the text, so no line of it can close the
+        # block early (CommonMark: a closing fence is at least as long as the opening one).
+        longest = max((len(run) for run in re.findall(r"`+", b.text)), default=0)
+        fence = "`" * max(3, longest + 1)
+        lang = re.sub(r"[^A-Za-z0-9_+-]", "", b.lang)
+        return [f"{fence}{lang}", b.text, fence]
     raise TypeError(type(b).__name__)  # pragma: no cover
 
 

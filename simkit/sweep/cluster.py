@@ -15,12 +15,15 @@ client); use the workers' own resource limits.
 
 from __future__ import annotations
 
+import contextlib
+import re
+import socket
 import threading
 import uuid
 from collections.abc import Callable, Iterator, Sequence
 from typing import Any
 
-from simkit.errors import UsageError
+from simkit.errors import UsageError, shown
 from simkit.sweep.pool import Outcome
 from simkit.sweep.worker import Evaluate, evaluate_safely
 
@@ -44,18 +47,50 @@ def remote_point(evaluate: Evaluate, prepare: Callable[[], None], payload: Any) 
         return evaluate_safely(evaluate, payload)
 
 
+#: A scheduler address: [PROTOCOL://]HOST:PORT, HOST a name, an IPv4 address or [an IPv6 address].
+_ADDRESS = re.compile(r"^(?:(?P<proto>tcp|tls|ws|wss)://)?(?P<host>\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9._-]+):(?P<port>[0-9]{1,5})$")
+#: Seconds to wait for the scheduler's port to answer before giving up.
+PROBE_TIMEOUT = 10.0
+
+
+def check_address(address: str) -> tuple[str, int]:
+    """``--scheduler``'s host and port; exit 2 unless it looks like tcp://HOST:PORT (checked before
+    anything runs, so a typing mistake is not found only after the journal was started)."""
+    m = _ADDRESS.match(address.strip())
+    port = int(m["port"]) if m else 0
+    if m is None or not 0 < port < 65536:
+        raise UsageError(f"--scheduler {shown(address, 100)!r}: expected the scheduler's address as tcp://HOST:PORT, "
+                         "e.g. tcp://10.0.0.5:8786")
+    return m["host"].strip("[]"), port
+
+
 def connect(address: str) -> Any:
     """A client of the scheduler at ``address`` (exit 2 when dask is missing or nobody answers)."""
+    host, port = check_address(address)
     try:
         from distributed import Client
     except ImportError:
         raise UsageError("--scheduler needs dask.distributed: pip install 'simkit[cluster]' "
                          "(on this machine and on every worker)") from None
+    # Knock first: a port nobody listens on is a clean one-line error, not a half-built client.
     try:
-        return Client(address, timeout="15s", set_as_default=False)
-    except (OSError, TimeoutError, ValueError) as exc:
-        raise UsageError(f"--scheduler {address}: no Dask scheduler answered ({exc}); start one with "
+        socket.create_connection((host, port), timeout=PROBE_TIMEOUT).close()
+    except OSError as exc:
+        raise UsageError(f"--scheduler {address}: no Dask scheduler answered ({exc.strerror or exc}); start one with "
                          "`dask scheduler` and give its tcp://HOST:PORT address") from None
+    client = Client.__new__(Client)
+    try:
+        client.__init__(address, timeout="15s", set_as_default=False)
+    except Exception as exc:
+        # A client that failed half-way would try to close itself when collected, wait 30 s and print a
+        # traceback: close it now, quietly.
+        with contextlib.suppress(Exception):
+            client.close(timeout=2)
+        with contextlib.suppress(Exception):
+            client.status = "closed"
+        raise UsageError(f"--scheduler {address}: no Dask scheduler answered ({type(exc).__name__}: {exc}); start "
+                         "one with `dask scheduler` and give its tcp://HOST:PORT address") from None
+    return client
 
 
 def cluster_outcomes(address: str, tasks: Sequence[tuple[int, Any]], evaluate: Evaluate,

@@ -13,11 +13,13 @@ from __future__ import annotations
 
 import json
 import os
+import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from simkit.errors import UsageError
+from simkit.errors import OutputError, UsageError
+from simkit.report.outputs import os_problem, read_regular, refuse_non_file, write_atomic
 
 try:
     import fcntl
@@ -68,7 +70,7 @@ def open_journal(path: Path, identity: dict[str, Any], force: bool) -> Opened:
     """
     path.parent.mkdir(parents=True, exist_ok=True)
     ident = {"format": FORMAT, **identity}
-    if path.exists():
+    if refuse_non_file(path) is not None:  # a link or special file is refused, --force included
         opened = _read(path)
         if opened is None:
             if not force:
@@ -87,7 +89,7 @@ def open_journal(path: Path, identity: dict[str, Any], force: bool) -> Opened:
 
 
 def _read(path: Path) -> Opened | None:
-    raw = path.read_bytes()
+    raw = read_regular(path, sys.maxsize) or b""
     end = raw.rfind(b"\n") + 1  # everything after the last newline is a torn line
     lines = raw[:end].splitlines()
     if not lines:
@@ -121,7 +123,7 @@ def _lock(fh: Any, path: Path) -> None:
 
 
 def _open_append(opened: Opened) -> Opened:
-    fh = open(opened.path, "r+b")  # kept open (and locked) for the whole run
+    fh = _open_nofollow(opened.path, os.O_RDWR)  # kept open (and locked) for the whole run
     _lock(fh, opened.path)
     if opened.repaired_bytes:
         size = fh.seek(0, os.SEEK_END)
@@ -134,25 +136,26 @@ def _open_append(opened: Opened) -> Opened:
 
 
 def _start(path: Path, ident: dict[str, Any]) -> Opened:
-    fh = open(path, "ab")  # kept open (and locked) for the whole run
-    _lock(fh, path)
-    fh.truncate(0)
-    fh.write((json.dumps(ident, separators=(",", ":")) + "\n").encode("utf-8"))
-    fh.flush()
-    os.fsync(fh.fileno())
-    _sync_dir(path.parent)
+    # A new file with just the header is renamed over whatever was there (never written through a
+    # link), then opened for appending without following links.
+    old = None
+    if refuse_non_file(path) is not None:  # a journal being replaced must not be in use
+        old = _open_nofollow(path, os.O_RDWR)
+        _lock(old, path)
+    try:
+        write_atomic(path, json.dumps(ident, separators=(",", ":")) + "\n")
+        fh = _open_nofollow(path, os.O_RDWR | os.O_APPEND)  # kept open (and locked) for the whole run
+        _lock(fh, path)
+    finally:
+        if old is not None:
+            old.close()
+    fh.seek(0, os.SEEK_END)
     return Opened(path, ident, {}, resumed=False, _fh=fh)
 
 
-def _sync_dir(folder: Path) -> None:
-    """Make the journal's directory entry durable too (a new file can vanish in a power cut)."""
+def _open_nofollow(path: Path, flags: int) -> Any:
     try:
-        fd = os.open(folder, os.O_RDONLY)
-    except OSError:  # pragma: no cover - e.g. Windows
-        return
-    try:
-        os.fsync(fd)
-    except OSError:  # pragma: no cover
-        pass
-    finally:
-        os.close(fd)
+        fd = os.open(path, flags | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_CLOEXEC", 0))
+    except OSError as exc:
+        raise OutputError(f"{path}: cannot open the journal: {os_problem(exc)}") from None
+    return os.fdopen(fd, "r+b")

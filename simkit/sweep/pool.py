@@ -133,7 +133,9 @@ class ProcessPool:
         attempts: collections.Counter[int] = collections.Counter()
         try:
             while queue or any(w.task is not None for w in self._workers):
-                while queue and len(self._workers) < self.jobs:
+                # A new worker only for a point no idle worker will take (1 point: 1 worker).
+                while queue and len(self._workers) < self.jobs and \
+                        sum(1 for w in self._workers if w.task is None) < len(queue):
                     self._spawn(ctx)
                 for w in list(self._workers):
                     if w.task is None and queue:

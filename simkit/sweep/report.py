@@ -49,9 +49,12 @@ def _value(path: str, v: Any) -> str:
 
 
 def _design_text(design_file: str | Path) -> str | None:
+    from simkit.design.loader import read_design_text
+    from simkit.errors import DesignError
+
     try:
-        return Path(design_file).read_text("utf-8")
-    except (OSError, UnicodeDecodeError):
+        return read_design_text(design_file)
+    except DesignError:
         return None
 
 

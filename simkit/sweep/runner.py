@@ -84,9 +84,12 @@ class _Terminated(Exception):
 
 
 def design_digest(path: str | Path) -> str:
+    from simkit.design.loader import read_design_bytes
+    from simkit.errors import DesignError
+
     try:
-        return hashlib.sha256(Path(path).read_bytes()).hexdigest()
-    except OSError:
+        return hashlib.sha256(read_design_bytes(path)).hexdigest()
+    except DesignError:
         return ""
 
 
@@ -116,15 +119,20 @@ def execute(kind: str, header: dict[str, Any], identity: dict[str, Any], inputs:
         (a spread's summary) and may write further files.
     """
     stream = opts.stream if opts.stream is not None else sys.stderr
-    out = OutputDir(opts.out, force=opts.force)
-    names = [f"{kind}.csv", f"{kind}.json", *outputs]
-    out.check(names)
-    journal = open_journal(out.path / f"{kind}.journal", {"kind": kind, "simkit": __version__, **identity}, opts.force)
-    t_start = time.monotonic()
-    try:
-        return _execute(kind, header, inputs, points, opts, out, journal, stream, finish, t_start, names)
-    finally:
-        journal.close()
+    if opts.scheduler:
+        from simkit.sweep.cluster import check_address
+
+        check_address(opts.scheduler)
+    with OutputDir(opts.out, force=opts.force) as out:  # locked for the whole run: one writer per folder
+        names = [f"{kind}.csv", f"{kind}.json", *outputs]
+        out.check(names)
+        journal = open_journal(out.path / f"{kind}.journal", {"kind": kind, "simkit": __version__, **identity},
+                               opts.force)
+        t_start = time.monotonic()
+        try:
+            return _execute(kind, header, inputs, points, opts, out, journal, stream, finish, t_start, names)
+        finally:
+            journal.close()
 
 
 def _entry(point: Point, result: dict[str, Any], attempts: int) -> dict[str, Any]:
@@ -219,7 +227,7 @@ def _outcomes(tasks: Sequence[tuple[int, Any]], opts: RunOptions) -> Generator[O
         from simkit.sweep.cluster import cluster_outcomes
 
         return cluster_outcomes(opts.scheduler, tasks, opts.evaluate, opts.prepare)
-    jobs = opts.jobs or default_jobs()
+    jobs = min(opts.jobs or default_jobs(), len(tasks))  # never more workers than points
     pool = ProcessPool(jobs=jobs, evaluate=opts.evaluate, prepare=opts.prepare, timeout=opts.timeout)
     return pool.run(tasks)
 

@@ -95,7 +95,11 @@ def parse_spec(spec: str, path: str = "") -> VarySpec:
     items = [s.strip() for s in text.split(",")]
     if any(not s for s in items):
         raise UsageError(f"{spec!r}: empty item in the list")
-    return VarySpec(path, text, "list", tuple(_list_value(s) for s in items))
+    values = tuple(_list_value(s) for s in items)
+    bad = next((s for s, v in zip(items, values, strict=True) if isinstance(v, float) and not math.isfinite(v)), None)
+    if bad is not None:  # nan and inf are TOML numbers, but no design value (and no JSON row) can hold them
+        raise UsageError(f"{bad!r} is not a finite number")
+    return VarySpec(path, text, "list", values)
 
 
 def _parse_range(text: str, path: str) -> VarySpec:
@@ -162,7 +166,7 @@ def _list_value(text: str) -> Value:
     """A list item read as ``--set`` reads a value: TOML when it is valid TOML, else text."""
     try:
         doc = tomllib.loads(f"v = {text}")
-    except tomllib.TOMLDecodeError:
+    except (ValueError, RecursionError):  # not TOML (or a number of thousands of digits): plain text
         return text
     v = doc["v"] if list(doc) == ["v"] else text
     return v if isinstance(v, (str, int, float, bool)) else text

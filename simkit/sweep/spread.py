@@ -32,7 +32,7 @@ from simkit.design.loader import apply_overrides, design_from_dict, read_toml
 from simkit.errors import DesignError, UsageError
 from simkit.report.outputs import OutputDir
 from simkit.sweep.runner import RunOptions, RunReport, design_digest, execute, with_check
-from simkit.sweep.specs import Point, override_text
+from simkit.sweep.specs import MAX_POINTS, Point, override_text
 from simkit.units import UnitError, parse_percent, parse_value
 
 #: Percentiles reported for every figure.
@@ -170,6 +170,8 @@ def run_spread(design_file: str | Path, runs: int, seed: int, opts: RunOptions,
     """
     if runs < 1:
         raise UsageError("--runs must be at least 1")
+    if runs > MAX_POINTS:  # as for a sweep grid: almost certainly a typing mistake (and days of work)
+        raise UsageError(f"--runs {runs}: more than simkit runs in one spread ({MAX_POINTS})")
     origin = str(design_file)
     data = apply_overrides(read_toml(design_file), overrides, origin)
     base = design_from_dict(data, origin=origin)
