@@ -130,15 +130,30 @@ def _fingerprint(circuit: Circuit, vscale: float) -> tuple[tuple[object, ...], n
 
 
 def _nearest(circuit: Circuit, vscale: float) -> Solution | None:
-    """The kept solution of the design nearest to this one (same structure), if any."""
+    """A warm start from the kept solutions of designs with the same structure, if any.
+
+    The nearest design's state, moved along the line through the two nearest: in a sweep the
+    state changes smoothly with the varied value, so a secant predicts the next point's state
+    better than its neighbour's (the predictor only shortens Newton's way, never its answer).
+    """
     key, values = _fingerprint(circuit, vscale)
-    best, dist = None, math.inf
-    for k, v, sol in _WARM:
-        if k == key and v.shape == values.shape:
-            d = float(np.sum(np.abs(v - values)))
-            if d < dist:
-                best, dist = sol, d
-    return best
+    near = sorted(((float(np.sum(np.abs(v - values))), v, sol) for k, v, sol in _WARM
+                   if k == key and v.shape == values.shape), key=lambda e: e[0])
+    if not near:
+        return None
+    d1, v1, s1 = near[0]
+    if len(near) < 2 or d1 == 0:
+        return s1
+    _, v2, s2 = near[1]
+    line = v1 - v2
+    span = float(line @ line)
+    if span == 0:
+        return s1
+    alpha = float((values - v1) @ line) / span
+    off_line = float(np.sum(np.abs(values - v1 - alpha * line)))
+    if not -0.5 <= alpha <= 2.0 or off_line > 0.1 * d1:
+        return s1
+    return replace(s1, x=s1.x + alpha * (s1.x - s2.x))
 
 
 def _remember(circuit: Circuit, vscale: float, solution: Solution) -> None:
