@@ -101,8 +101,14 @@ without leakage is its Norton equivalent: ``e/Rs`` into its first terminal, out 
 second, ``W`` collecting these ``1/Rs`` with the half-winding's sign); ``B``, ``K`` and
 ``A`` are the +1/-1 incidence matrices of the capacitors, inductors and diodes (first
 node +1). A winding with leakage is ``e/Rs`` with ``1/Rs`` into an inner node, then its
-inductor to the terminal. The system is solved by Newton's method with a backtracking
-line search on the weighted residual norm, starting from the previous solution, until
+inductor to the terminal. These are the conditions for the minimum of the network's
+content ``v'Gv/2 - (W e - K i_L)'v + sum_k Psi(A_k v)`` (``Psi`` the diode's co-content,
+convex) on the affine set ``B'v = u``, the capacitor currents being the Lagrange
+multipliers. The system is solved by Newton's method from the previous solution
+projected onto that set (Newton's steps then keep ``B'v = u``). While a step exceeds
+``1e-4`` of the voltage scale it is taken whole only where it lowers the content enough
+(Armijo), else up to the content's minimum along it (bisection on its slope), so the
+iteration converges from any start, ideal switches and exponentials alike. It stops when
 the node-voltage step is below ``1e-12`` of the voltage scale (or below ``1e-8`` of it
 and no longer shrinking: the rounding floor of a node held only by high-value ties).
 Then::
@@ -164,7 +170,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.integrate import solve_ivp
 from scipy.optimize import OptimizeResult, brentq
-from scipy.special import wrightomega
+from scipy.special import wrightomega, xlogy
 
 FloatArray = NDArray[np.float64]
 
@@ -316,6 +322,33 @@ class Diode:
             return nvt / self.r_d * w - self.i_s, w / ((1.0 + w) * self.r_d)
         ex = np.exp(np.minimum(v / nvt, 700.0))
         return self.i_s * (ex - 1.0), self.i_s / nvt * ex
+
+    def content(self, v: FloatArray) -> FloatArray:
+        """Co-content ``Psi(v)``, the integral of the current over the voltage from 0 (W).
+
+        ``i*v - N*Vt*((i + Is)*ln(1 + i/Is) - i) - Rd*i^2/2`` for the exponential law
+        (its derivative is ``i`` because ``v = N*Vt*ln(1 + i/Is) + i*Rd``), ``v^2/(2*r_on)``
+        for ``v > 0`` (else 0) for the ideal one. Overflows to ``inf`` far in forward
+        conduction without ``Rd``.
+
+        Parameters
+        ----------
+        v : numpy.ndarray
+            Terminal voltage, anode minus cathode (V).
+
+        Returns
+        -------
+        numpy.ndarray
+            Co-content (W).
+        """
+        if self.model == "ideal":
+            return np.maximum(v, 0.0) ** 2 / (2.0 * self.r_on)
+        nvt = self.n_vt
+        if self.r_d == 0.0:
+            return self.i_s * (nvt * np.expm1(v / nvt) - v)
+        i = self.current(v)
+        j = np.maximum(i + self.i_s, 0.0)
+        return i * v - nvt * (xlogy(j, j / self.i_s) - i) - 0.5 * self.r_d * i * i
 
     @cached_property
     def _z0(self) -> float:
@@ -1012,13 +1045,13 @@ class _Nodal:
         m0[:n, n:] = b_inc
         m0[n:, :n] = b_inc.T
         self.m0 = m0
+        # dv = project @ r is the smallest change of v with B'dv = r (the capacitors form no loop).
+        self.project = b_inc @ np.linalg.inv(b_inc.T @ b_inc) if mc else np.zeros((n, 0))
         self.cap_values = np.array(self._cap_values)
         self.ind_values = np.array(self._ind_values)
         self.part = np.array([p for _, _, p in self._caps], dtype=bool)
         self.n_caps = mc
         self.n_states = mc + len(self._inds)
-        # Residual weights: Kirchhoff rows (A) times Rs, capacitor rows (V).
-        self.weight = np.concatenate([np.full(n, c.rs), np.ones(mc)])[:, None]
         self.vscale = c.vpk * (2.0 * c.stages if c.topology == "cascade" else 2.0)  # V
         self._guess: dict[int, FloatArray] = {}
         # Shooting: scales, bounds and a start (module docstring).
@@ -1040,28 +1073,31 @@ class _Nodal:
             lower[parts], upper[parts], start[parts] = 0.0, no_load, 0.9 * no_load
         self.lower, self.upper, self.start = lower, upper, start
 
-    def _residual(self, z: FloatArray, rhs: FloatArray) -> tuple[FloatArray, FloatArray, FloatArray]:
-        """Residual of the network equations, diode currents and conductances."""
-        i, g = self.circuit.diode.current_and_conductance(self.a_inc @ z[: self.n])
-        f = self.m0 @ z - rhs
-        f[: self.n] += self.a_inc.T @ i
-        return f, i, g
-
     def solve(self, rhs: FloatArray, guess: FloatArray | None = None) -> FloatArray:
         """Node voltages and capacitor currents, shape ``(size, N)``, for right-hand sides ``rhs``.
 
-        Newton's method with a backtracking line search (module docstring), started
-        from ``guess``, else from the last solution with the same number of columns.
+        The network equations are the stationarity conditions of the convex content
+        ``Phi(v) = v'Gv/2 - (W e - K i_L)'v + sum_k Psi(A_k v)`` (``Psi`` the diode's
+        co-content, the integral of its current over its voltage) on the affine set
+        ``B'v = u``, with the capacitor currents as Lagrange multipliers.  So: project
+        the start onto that set, then take Newton steps (which keep ``B'v = u``) with a
+        backtracking line search on ``Phi``, which makes the iteration converge from any
+        start.  Started from ``guess``, else from the last solution with the same
+        number of columns.
         """
         cols = rhs.shape[1]
+        n = self.n
         z = self._guess.get(cols) if guess is None else guess
         z = np.zeros((self.size, cols)) if z is None else z.copy()
-        n = self.n
-        f, _, g = self._residual(z, rhs)
-        merit = np.sum((self.weight * f) ** 2, axis=0)
+        z[:n] += self.project @ (rhs[n:] - self.m0[n:, :n] @ z[:n])  # onto B'v = u
         tol = 1e-12 * self.vscale
         previous = math.inf
+        diode = self.circuit.diode
         for _ in range(200):
+            i, g = diode.current_and_conductance(self.a_inc @ z[:n])
+            f = self.m0 @ z - rhs
+            f[:n] += self.a_inc.T @ i
+            f[n:] = 0.0  # B'v = u holds (up to rounding) along the whole iteration
             jac = np.broadcast_to(self.m0, (cols, self.size, self.size)).copy()
             jac[:, :n, :n] += np.einsum("kN,kn,km->Nnm", g, self.a_inc, self.a_inc)
             dz = np.linalg.solve(jac, -f.T[:, :, None])[:, :, 0].T
@@ -1074,23 +1110,48 @@ class _Nodal:
                 self._guess[cols] = z
                 return z
             previous = step
-            alpha = np.ones(cols)
-            zn = z + dz
-            fn, _, gn = self._residual(zn, rhs)
-            merit_n = np.sum((self.weight * fn) ** 2, axis=0)
-            if step > 1e-6 * self.vscale:
-                # Far from the root: halve the step where the residual did not fall
-                # (Armijo condition; the Newton step is a descent direction of the merit).
-                for _ in range(60):
-                    bad = merit_n > (1.0 - 1e-4 * alpha) * merit
-                    if not bad.any():
-                        break
-                    alpha = np.where(bad, 0.5 * alpha, alpha)
-                    zn = z + alpha * dz
-                    fn, _, gn = self._residual(zn, rhs)
-                    merit_n = np.sum((self.weight * fn) ** 2, axis=0)
-            z, f, g, merit = zn, fn, gn, merit_n
+            if step <= 1e-4 * self.vscale:
+                z = z + dz  # close to the solution: full Newton steps
+                continue
+            # Far from it: the whole step where it lowers the content enough (Armijo), else a
+            # line search for the content's minimum along it.  Its slope there,
+            # h(alpha) = (G(v + alpha dv) - b)'dv + sum_k i_D(x_k + alpha dx_k) dx_k, increases
+            # with alpha (the content is convex) and h(0) = f'dv < 0: bisect for the root of h
+            # in (0, 1) to 0.1 % and take the upper end (just past the minimum, so a diode
+            # turning on there is on for the next Jacobian).
+            alpha = self._line_search(z[:n], dz[:n], rhs[:n])
+            z = z + alpha * dz
         raise RuntimeError("refsolver: nodal network did not converge")
+
+    def _line_search(self, v: FloatArray, dv: FloatArray, b: FloatArray) -> FloatArray:
+        """Step length per column for `solve` (the upper end of the bracket of the content's minimum)."""
+        g_lin = self.m0[: self.n, : self.n]
+        h0 = np.sum((g_lin @ v - b) * dv, axis=0)
+        h1 = np.sum(dv * (g_lin @ dv), axis=0)
+        x, dx = self.a_inc @ v, self.a_inc @ dv
+        diode = self.circuit.diode
+
+        def slope(alpha: FloatArray) -> FloatArray:
+            return h0 + alpha * h1 + np.sum(diode.current(x + alpha * dx) * dx, axis=0)
+
+        ones = np.ones(v.shape[1])
+        # The whole step where it lowers the content enough (Armijo); the change is summed
+        # term by term, no difference of large totals.
+        with np.errstate(over="ignore", invalid="ignore"):
+            change = h0 + 0.5 * h1 + np.sum(diode.content(x + dx) - diode.content(x), axis=0)
+        search = ~(change <= 1e-4 * h0)
+        if not search.any():
+            return ones
+        search &= slope(ones) > 0.0
+        lo, hi = np.zeros_like(ones), ones.copy()
+        for _ in range(80):
+            if not np.any(search & (hi - lo > 1e-3 * hi)):
+                break
+            mid = 0.5 * (lo + hi)
+            up = slope(mid) > 0.0
+            hi = np.where(search & up, mid, hi)
+            lo = np.where(search & ~up, mid, lo)
+        return np.where(search, hi, 1.0)
 
     def _rhs(self, e: FloatArray | float, y: FloatArray) -> FloatArray:
         mc = self.n_caps
