@@ -3,7 +3,7 @@
 Responsibility: show that the independent rectifier solver reproduces exact and limiting
 closed-form results, so that it can serve as the yardstick for simkit.  Every expected
 number names its source beside it: a published result, or "derived here" where the
-derivation is ours (it is then written out in the comment or the helper's docstring).
+derivation is ours (written out in the comment or in tests/closed_forms.py).
 Each tolerance is a modest factor above the agreement measured (docs/testing.md), or the
 closed form's own error where the closed form is a limit.
 """
@@ -16,8 +16,17 @@ from functools import cache
 import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
-from scipy.optimize import brentq
 
+from tests.closed_forms import (
+    choke_harmonics,
+    choke_input_vdc,
+    critical_inductance,
+    first_pulse_peak,
+    ideal_ripple,
+    leakage_limit,
+    limit_currents,
+    limit_phi,
+)
 from tests.refsolver import (
     Choke,
     Circuit,
@@ -76,6 +85,10 @@ def test_diode_law_closed_form_inverts_the_junction_equation(r_d: float) -> None
     _, g = d.current_and_conductance(v)
     fd = (d.current(v + 1e-6) - d.current(v - 1e-6)) / 2e-6
     assert np.allclose(g, fd, rtol=1e-5, atol=0.0)
+    # ... and the co-content (the nodal Newton's line search minimises it) has the current as its
+    # derivative (central difference, 10 uV; measured within 1e-7).
+    fd = (d.content(v + 1e-5) - d.content(v - 1e-5)) / 2e-5
+    assert np.allclose(fd, i, rtol=1e-6, atol=1e-12)
 
 
 def test_cascade_of_ideal_switches_is_rejected() -> None:
@@ -88,33 +101,8 @@ def test_cascade_of_ideal_switches_is_rejected() -> None:
 # --- the infinite-C limit with series resistance ---------------------------------------------------------
 
 
-def limit_phi(rs_over_rl: float, n: float) -> float:
-    """Half conduction angle phi (rad) from ``tan(phi) - phi = pi*Rs/(n*RL)``.
-
-    The infinite-capacitance limit of a capacitor-input rectifier with series resistance:
-    the classical result behind O. H. Schade's curve families ("Analysis of Rectifier
-    Operation", Proc. IRE 31(7), 1943, pp. 341-361); derivation done here.  With the output
-    constant at Vdc = Vpk cos(phi), the diode conducts for |theta| < phi around each crest and
-    carries (Vpk cos(theta) - Vdc)/Rs; charge balance with the load, n pulses per period
-    (1 half-wave, 2 full-wave, 1/2 for each capacitor of the full-wave doubler, which
-    carries the whole load current but is charged once per period), gives
-    n Vpk (sin(phi) - phi cos(phi)) / (pi Rs) = Vpk cos(phi) / RL.
-    """
-    target = math.pi * rs_over_rl / n
-    return brentq(lambda p: math.tan(p) - p - target, 1e-9, math.pi / 2 - 1e-9, xtol=1e-15)
-
-
-def limit_currents(phi: float, rs: float) -> tuple[float, float, float]:
-    """Peak, mean and RMS diode current (A) of the limit above (derived here by integrating
-    i(theta) = Vpk (cos(theta) - cos(phi)) / Rs over |theta| < phi)."""
-    c, s = math.cos(phi), math.sin(phi)
-    i_pk = VPK * (1.0 - c) / rs
-    i_avg = VPK * (s - phi * c) / (math.pi * rs)
-    i_rms = VPK / rs * math.sqrt((phi * (1.0 + 2.0 * c * c) - 3.0 * s * c) / (2.0 * math.pi))
-    return i_pk, i_avg, i_rms
-
-
-# (topology, n, Rs/RL): the three values give the same phi, 25.37 deg.
+# tan(phi) - phi = pi Rs/(n RL), Vdc = Vpk cos(phi) (tests/closed_forms.py: the limit behind Schade's
+# curves, Proc. IRE 1943; derivation done here).  (topology, n, Rs/RL): all four give phi = 25.37 deg.
 LIMIT_CASES: list[tuple[Topology, float, float]] = [
     ("half-wave", 1.0, 0.01),
     ("centre-tap", 2.0, 0.02),
@@ -142,7 +130,7 @@ def test_infinite_c_limit_vdc(topology: Topology, n: float, rs_over_rl: float) -
 @pytest.mark.parametrize(("topology", "n", "rs_over_rl"), LIMIT_CASES)
 def test_infinite_c_limit_diode_currents(topology: Topology, n: float, rs_over_rl: float) -> None:
     ss = solve(limit_circuit(topology, rs_over_rl))
-    i_pk, i_avg, i_rms = limit_currents(limit_phi(rs_over_rl, n), rs_over_rl * RL)
+    i_pk, i_avg, i_rms = limit_currents(limit_phi(rs_over_rl, n), VPK, rs_over_rl * RL)
     # Measured at omega*C*RL = 1000: within 0.019 % (doubler peak), the finite-C effect.
     assert ss.diode_peak == pytest.approx(i_pk, rel=5e-4)
     assert ss.diode_avg == pytest.approx(i_avg, rel=5e-4)
@@ -157,7 +145,7 @@ def test_infinite_c_limit_scales_with_n() -> None:
     for topology, _, rs_over_rl in LIMIT_CASES:
         ss = solve(limit_circuit(topology, rs_over_rl))
         ratios.append((ss.diode_peak / ss.diode_avg, ss.diode_rms / ss.diode_avg))
-    i_pk, i_avg, i_rms = limit_currents(limit_phi(0.01, 1.0), 0.01 * RL)
+    i_pk, i_avg, i_rms = limit_currents(limit_phi(0.01, 1.0), VPK, 0.01 * RL)
     for pk, rms in ratios:
         assert pk == pytest.approx(i_pk / i_avg, rel=2e-4)  # measured within 0.009 %
         assert rms == pytest.approx(i_rms / i_avg, rel=1e-4)  # measured within 0.006 %
@@ -190,25 +178,6 @@ def test_reservoir_ripple_current_by_kcl(topology: Topology, rs_over_rl: float, 
 
 
 # --- exact ripple with ideal diodes and no source resistance ----------------------------------------------
-
-
-def ideal_ripple(omega_c_rl: float, span: float) -> float:
-    """Relative ripple ``r = dV_pp/Vpk`` of an ideal diode with Rs = 0 (derived here).
-
-    The capacitor follows the source until the diode current omega*C*Vpk*cos(theta) +
-    Vpk*sin(theta)/RL falls to zero, at theta = pi/2 + a with a = atan(1/(omega*C*RL)),
-    voltage Vpk*cos(a); it then decays as exp(-(theta - pi/2 - a)/(omega*C*RL)) until the
-    source (period ``span``: 2*pi half-wave, pi full-wave) reaches it again at
-    theta = span + pi/2 - acos(1 - r), where it is Vpk*(1 - r)::
-
-        cos(a) * exp(-(span - acos(1 - r) - a) / (omega*C*RL)) = 1 - r
-    """
-    a = math.atan(1.0 / omega_c_rl)
-
-    def g(r: float) -> float:
-        return math.cos(a) * math.exp(-(span - math.acos(1.0 - r) - a) / omega_c_rl) - (1.0 - r)
-
-    return brentq(g, 1e-12, 1.0 - 1e-12, xtol=1e-15)
 
 
 @pytest.mark.parametrize(
@@ -289,30 +258,11 @@ def test_surge_at_crest(topology: Topology) -> None:
     assert result.vcap_max <= VPK * (1.0 + 1e-9)  # a half- or full-wave reservoir never exceeds the crest
 
 
-def first_pulse_peak(rs: float, rl: float, c: float) -> float:
-    """Peak current (A) of the first charging pulse after switch-on at the zero crossing.
-
-    Closed form of the first-order circuit (derived here): while the ideal diode conducts,
-    the capacitor sees the Thevenin source k*Vpk*sin(wt) (k = RL/(Rs+RL)) behind
-    R' = Rs || RL, so v(t) = A*sin(wt - d) + A*sin(d)*exp(-t/tau) with tau = R'*C,
-    A = k*Vpk/sqrt(1 + (w*tau)^2), d = atan(w*tau); the diode current is
-    (Vpk*sin(wt) - v)/Rs.
-    """
-    k = rl / (rs + rl)
-    tau = rs * rl / (rs + rl) * c
-    d = math.atan(OMEGA * tau)
-    a = k * VPK / math.sqrt(1.0 + (OMEGA * tau) ** 2)
-    t = np.linspace(0.0, 0.5 / F, 200001)
-    v = a * np.sin(OMEGA * t - d) + a * math.sin(d) * np.exp(-t / tau)
-    i = (VPK * np.sin(OMEGA * t) - v) / rs
-    return float(i.max())
-
-
 def test_surge_at_zero_crossing() -> None:
     circuit = Circuit("half-wave", VRMS, F, SURGE_RS, RL, SURGE_C)
     result = switch_on(circuit, 0.0, cycles=2)
     # Measured within 0.00003 % of the closed form (here 0.60 Vpk/Rs).
-    assert result.surge == pytest.approx(first_pulse_peak(SURGE_RS, RL, SURGE_C), rel=2e-6)
+    assert result.surge == pytest.approx(first_pulse_peak(VPK, OMEGA, SURGE_RS, RL, SURGE_C), rel=2e-6)
 
 
 def test_surge_with_forward_drop() -> None:
@@ -354,61 +304,8 @@ def test_nodal_and_reduced_formulations_agree(topology: Topology, stages: int, t
 # --- choke input ------------------------------------------------------------------------------------------
 
 
-def choke_input_vdc(topology: str, rs: float, dcr: float, rl: float) -> float:
-    """Output (V) of a full-wave choke-input filter with constant choke current (derived here).
-
-    With infinite inductance the choke current is a constant I and the rectifier output is
-    the full-wave rectified EMF less the winding drop: bridge ``|e| - Rs*I`` while
-    ``|e| >= Rs*I``, else 0 (all four diodes share the current; the winding current is e/Rs);
-    centre-tap ``|e| - Rs*I`` while ``|e| >= Rs*I/2``, else ``-Rs*I/2`` (both halves conduct,
-    each with half the current).  Its mean is ``2*Vpk*cos(t0)/pi - Rs*I*(1 - 2*t0/pi)`` with
-    ``sin(t0) = Rs*I/Vpk`` (bridge), ``2*Vpk*cos(t1)/pi - Rs*I*(1 - t1/pi)`` with
-    ``sin(t1) = Rs*I/(2*Vpk)`` (centre-tap): with Rs -> 0 the familiar 2*Vpk/pi (the mean of a
-    full-wave rectified sine).  The choke's mean voltage is its DCR drop and I = Vdc/RL.
-    """
-
-    def balance(i: float) -> float:
-        if topology == "bridge":
-            t0 = math.asin(rs * i / VPK)
-            rect = 2 * VPK * math.cos(t0) / math.pi - rs * i * (1 - 2 * t0 / math.pi)
-        else:
-            t1 = math.asin(rs * i / (2 * VPK))
-            rect = 2 * VPK * math.cos(t1) / math.pi - rs * i * (1 - t1 / math.pi)
-        return rect - dcr * i - rl * i
-
-    return rl * brentq(balance, 0.0, VPK / rl, xtol=1e-15)
-
-
-def choke_harmonics(rs: float, dcr: float, inductance: float, c: float, rl: float,
-                    kmax: int = 400) -> tuple[np.ndarray, np.ndarray]:
-    """Choke current (A) and output (V) over one period, continuous conduction, Rs small (derived here).
-
-    The rectified EMF of a full-wave rectifier is Vpk*|sin(theta)| = 2*Vpk/pi -
-    (4*Vpk/pi) * sum_k cos(2*k*theta)/(4*k^2 - 1) (its Fourier series, computed here).  While
-    a diode pair always conducts, the rectifier output is that less Rs*i, so the filter is a
-    linear circuit driven by the series: each harmonic sees Rs + DCR + j*2k*w*L in series
-    with C || RL.
-    """
-    theta = np.linspace(0.0, 2 * math.pi, 40001)
-    i0 = (2 * VPK / math.pi) / (rs + dcr + rl)
-    current = np.full_like(theta, i0)
-    out = np.full_like(theta, i0 * rl)
-    for k in range(1, kmax + 1):
-        vk = -(4 * VPK / math.pi) / (4 * k * k - 1)
-        z_rc = rl / (1 + 2j * k * OMEGA * c * rl)
-        ik = vk / (rs + dcr + 2j * k * OMEGA * inductance + z_rc)
-        phase = np.exp(2j * k * theta)
-        current += np.real(ik * phase)
-        out += np.real(ik * z_rc * phase)
-    return current, out
-
-
 CHOKE_RL = 3e3  # ohm
-# Critical inductance R_L/(3 omega) (F. E. Terman, Radio Engineers' Handbook, 1943, from memory;
-# derived here: the second harmonic of the rectified EMF, 4 Vpk/(3 pi) = 2/3 of 2 Vpk/pi, drives
-# an AC current of about (2/3) Vdc/(2 omega L) through the choke when C shunts the load well;
-# conduction stays continuous while that stays below Idc = Vdc/R_L).
-L_CRIT = CHOKE_RL / (3 * OMEGA)  # 3.18 H
+L_CRIT = critical_inductance(CHOKE_RL, OMEGA)  # 3.18 H (tests/closed_forms.py: Terman, derived here)
 
 
 def choke_circuit(topology: Topology, rs: float, inductance: float, dcr: float, c: float,
@@ -424,7 +321,7 @@ def choke_circuit(topology: Topology, rs: float, inductance: float, dcr: float, 
 def test_choke_input_vdc_with_a_large_choke(topology: Topology) -> None:
     ss = solve(choke_circuit(topology, 20.0, 10 * L_CRIT, 100.0, 470e-6))
     # Measured within 0.0003 %.
-    assert ss.vdc == pytest.approx(choke_input_vdc(topology, 20.0, 100.0, CHOKE_RL), rel=2e-5)
+    assert ss.vdc == pytest.approx(choke_input_vdc(topology, VPK, 20.0, 100.0, CHOKE_RL), rel=2e-5)
     assert ss.choke_min > 0.8 * ss.choke_avg  # continuous conduction with a small ripple current
 
 
@@ -433,7 +330,7 @@ def test_choke_input_ripple_above_critical_inductance(topology: Topology) -> Non
     # 1.25 L_crit: the choke current dips to a tenth of its mean but never stops.  Rs = 1 ohm keeps
     # the commutation overlap (where the harmonic model does not hold) to 0.01 degree.
     ss = solve(choke_circuit(topology, 1.0, 1.25 * L_CRIT, 10.0, 47e-6))
-    current, out = choke_harmonics(1.0, 10.0, 1.25 * L_CRIT, 47e-6, CHOKE_RL)
+    current, out = choke_harmonics(VPK, OMEGA, 1.0, 10.0, 1.25 * L_CRIT, 47e-6, CHOKE_RL)
     # Measured within 0.0004 % (ripple) and 0.0004 % (choke current extremes).
     assert ss.ripple_pp == pytest.approx(out.max() - out.min(), rel=1e-4)
     assert ss.choke_peak == pytest.approx(current.max(), rel=1e-4)
@@ -449,40 +346,15 @@ def test_choke_input_below_critical_inductance_conducts_discontinuously() -> Non
     # exponential diode (N = 0.05 and 1 milliohm: about 35 mV forward) keeps the network smooth.
     near_ideal = Diode("exponential", i_s=1e-12, n=0.05, r_d=1e-3)
     ss = solve(choke_circuit("bridge", 1.0, 0.7 * L_CRIT, 10.0, 47e-6, near_ideal))
-    current, _ = choke_harmonics(1.0, 10.0, 0.7 * L_CRIT, 47e-6, CHOKE_RL)
+    current, _ = choke_harmonics(VPK, OMEGA, 1.0, 10.0, 0.7 * L_CRIT, 47e-6, CHOKE_RL)
     assert current.min() < 0
     # Measured: 288.7 V against 269.1 V for continuous conduction.
-    assert ss.vdc > 1.05 * choke_input_vdc("bridge", 1.0, 10.0, CHOKE_RL)
+    assert ss.vdc > 1.05 * choke_input_vdc("bridge", VPK, 1.0, 10.0, CHOKE_RL)
     # The choke current falls to zero (and a little below, 3 % of its mean, ringing with the snubber).
     assert ss.choke_min < 0.0
 
 
 # --- winding leakage inductance ----------------------------------------------------------------------------
-
-
-def leakage_limit(inductance: float, rl: float, pulses: int) -> tuple[float, float]:
-    """Vdc (V) and peak diode current (A) with series inductance, infinite C, Rs = 0 (derived here).
-
-    A diode conducts from theta = a, where the EMF reaches the output (sin(a) = Vdc/Vpk),
-    while L di/dt = Vpk sin(theta) - Vdc; so
-    i(theta) = Vpk/(w L) * (cos(a) - cos(theta) - sin(a)*(theta - a)) until it returns to zero
-    at theta = b.  Its peak is at theta = pi - a.  Charge balance with ``pulses`` pulses per
-    period: pulses/(2 pi) * integral of i over (a, b) = Vdc/RL.
-    """
-    x = OMEGA * inductance
-
-    def end(a: float) -> float:
-        return brentq(lambda b: math.cos(a) - math.cos(b) - math.sin(a) * (b - a), math.pi - a, 2 * math.pi,
-                      xtol=1e-15)
-
-    def balance(a: float) -> float:
-        b = end(a)
-        q = (b - a) * math.cos(a) - (math.sin(b) - math.sin(a)) - math.sin(a) * (b - a) ** 2 / 2
-        return pulses * VPK / (2 * math.pi * x) * q - VPK * math.sin(a) / rl
-
-    a = brentq(balance, 1e-6, math.pi / 2 - 1e-6, xtol=1e-15)
-    assert end(a) < math.pi + a or pulses == 1  # one pulse ends before the next begins
-    return VPK * math.sin(a), VPK / x * (2 * math.cos(a) - math.sin(a) * (math.pi - 2 * a))
 
 
 @pytest.mark.parametrize(("topology", "inductance", "pulses"),
@@ -494,7 +366,7 @@ def test_leakage_inductance_against_its_limit(topology: Topology, inductance: fl
     snub = Snubber(1e-9, math.sqrt(inductance / 1e-9))
     ss = solve(Circuit(topology, VRMS, F, 0.01, rl, cap_for(1e5, rl), SWITCH, leakage=inductance,
                        winding_snubber=snub))
-    vdc, i_pk = leakage_limit(inductance, rl, pulses)
+    vdc, i_pk = leakage_limit(VPK, OMEGA, inductance, rl, pulses)
     assert ss.vdc == pytest.approx(vdc, rel=1e-4)
     assert ss.diode_peak == pytest.approx(i_pk, rel=1e-4)
 
