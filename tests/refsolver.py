@@ -42,6 +42,10 @@ Options, each changing the circuit above in one place:
 ``tie`` (ohm; bridge and doubler)
     Both terminals of the floating winding (ac1 and ac2, or ac1 and mid) are tied to
     ground through this resistance.
+``filters`` (sections)
+    Further sections after the output above, in order: ``c`` a capacitor to ground at
+    the present node, ``r`` a series resistor and ``l`` a series inductor (with its
+    winding resistance) to the next node; ``RL`` moves to the last node.
 
 Equations
 ---------
@@ -88,7 +92,7 @@ For the cascade (capacitor voltages ``u(2k-1) = v(p_k) - v(p_{k-1})`` and
     C du(2k-1)/dt = sum_{j>=k} (i_D(2j-1) - i_D(2j))
     C du(2k)/dt   = sum_{j>=k} i_D(2j) - sum_{j>k} i_D(2j-1) - i_L
 
-*Nodal* (any circuit; required with leakage, a choke or ties). Modified nodal analysis
+*Nodal* (any circuit; required with leakage, a choke, ties or filter sections). Modified nodal analysis
 of the network with the node voltages ``v`` (ground excluded) and the capacitor branch
 currents ``i_C`` (from the capacitor's first node through it to its second) as
 unknowns::
@@ -428,6 +432,30 @@ class Choke:
 
 
 @dataclass(frozen=True)
+class Section:
+    """One filter section after the rectifier's own output (module docstring, option ``filters``).
+
+    Parameters
+    ----------
+    kind : {"c", "r", "l"}
+        A capacitor to ground at the present node, or a resistor or inductor in series to
+        the next node.
+    value : float
+        F, ohm or H, > 0.
+    dcr : float
+        Winding resistance of an inductor (ohm), >= 0.
+    """
+
+    kind: Literal["c", "r", "l"]
+    value: float
+    dcr: float = 0.0
+
+    def __post_init__(self) -> None:
+        if self.kind not in ("c", "r", "l") or not self.value > 0 or self.dcr < 0:
+            raise ValueError(f"Section: need kind c, r or l, value > 0 and dcr >= 0, got {self!r}")
+
+
+@dataclass(frozen=True)
 class Circuit:
     """A rectifier with its source, filter and load.
 
@@ -459,6 +487,9 @@ class Circuit:
     tie : float
         Resistance tying each terminal of a floating winding to ground (ohm); 0 for
         none. The nodal formulation of the bridge needs it.
+    filters : tuple of Section
+        Further filter sections after the rectifier's output (after its reservoir, or
+        after the choke and its capacitor); ``RL`` sits at the last node.
 
     Examples
     --------
@@ -478,6 +509,7 @@ class Circuit:
     winding_snubber: Snubber | None = None
     choke: Choke | None = None
     tie: float = 0.0  # ohm
+    filters: tuple[Section, ...] = ()
 
     def __post_init__(self) -> None:
         if self.topology not in TOPOLOGIES:
@@ -505,7 +537,7 @@ class Circuit:
     @property
     def needs_nodal(self) -> bool:
         """True when only the nodal formulation describes the circuit."""
-        return self.leakage > 0 or self.choke is not None or self.tie > 0
+        return self.leakage > 0 or self.choke is not None or self.tie > 0 or bool(self.filters)
 
     @property
     def vpk(self) -> float:
@@ -992,6 +1024,19 @@ class _Nodal:
             self._capacitor(out, "0", c.c)
         elif topo in ("half-wave", "centre-tap", "bridge"):
             self._capacitor("rect", "0", c.c)
+        for k, sec in enumerate(c.filters, start=2):
+            if sec.kind == "c":
+                self._capacitor(out, "0", sec.value)
+            elif sec.kind == "r":
+                self._resistor(out, f"f{k}", sec.value)
+                out = f"f{k}"
+            elif sec.dcr > 0:
+                self._inductor(out, f"l{k}r", sec.value)
+                self._resistor(f"l{k}r", f"f{k}", sec.dcr)
+                out = f"f{k}"
+            else:
+                self._inductor(out, f"f{k}", sec.value)
+                out = f"f{k}"
         self._resistor(out, "0", c.rl)
         self.out = self._node(out)
 
@@ -1069,8 +1114,14 @@ class _Nodal:
             assert self.choke_row is not None
             start[mc + self.choke_row] = vdc / c.rl
         else:
+            # The rectifier's own capacitors come first; the filters' after them.
             no_load = _no_load_state(c)
-            lower[parts], upper[parts], start[parts] = 0.0, no_load, 0.9 * no_load
+            own = parts[: no_load.size]
+            lower[own], upper[own], start[own] = 0.0, no_load, 0.9 * no_load
+        # Capacitors of further filter sections: at most the unloaded output.
+        top = c.vpk * (2.0 * c.stages if c.topology == "cascade" else 2.0 if c.topology == "doubler" else 1.0)
+        rest = parts[1 if c.choke is not None else _no_load_state(c).size:]
+        lower[rest], upper[rest], start[rest] = 0.0, top, 0.8 * top
         self.lower, self.upper, self.start = lower, upper, start
 
     def solve(self, rhs: FloatArray, guess: FloatArray | None = None) -> FloatArray:
@@ -1562,6 +1613,7 @@ __all__ = [
     "Choke",
     "Circuit",
     "Diode",
+    "Section",
     "Snubber",
     "SteadyState",
     "SwitchOn",

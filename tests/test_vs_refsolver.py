@@ -31,7 +31,7 @@ import pytest
 from simkit.design.loader import design_from_dict
 from simkit.engine.ngspice import Engine
 from simkit.pipeline import RunResult, simulate
-from tests.refsolver import Choke, Circuit, Diode, Snubber, SteadyState, SwitchOn, steady_state, switch_on
+from tests.refsolver import Choke, Circuit, Diode, Section, Snubber, SteadyState, SwitchOn, steady_state, switch_on
 
 pytestmark = pytest.mark.ngspice
 
@@ -73,20 +73,27 @@ class Case:
     stages: int = 1
     leakage: float = 0.0  # H
     choke: tuple[float, float] | None = None  # (L in H, DCR in ohm)
+    filters: tuple[tuple[str, float], ...] = ()  # further sections: ("r", ohm) or ("c", F)
+    bleeder_only: bool = False  # rl is a bleeder, no load (simkit's idle supply)
+    engine_issue: tuple[str, ...] = ()  # figures held in a separate, named test (see ENGINE ISSUES below)
 
     def design(self) -> dict[str, Any]:
         d: dict[str, Any] = {
             "title": f"vs reference: {self.name}",
             "source": {"vrms": self.vrms, "frequency": self.f, "resistance": self.rs, "inductance": self.leakage},
             "rectifier": {"topology": self.topology, "diode": {"is": IS, "n": N, "rs": RS}},
-            "load": {"kind": "resistor", "r": self.rl},
         }
+        if self.bleeder_only:
+            d["bleeder"] = {"r": self.rl}
+        else:
+            d["load"] = {"kind": "resistor", "r": self.rl}
         if self.topology in ("doubler", "cascade"):
             d["rectifier"]["capacitance"] = self.c
         elif self.choke is not None:
             d["filter"] = [{"l": self.choke[0], "dcr": self.choke[1]}, {"c": self.c}]
         else:
             d["filter"] = [{"c": self.c}]
+        d["filter"] = d.get("filter", []) + [{kind: value} for kind, value in self.filters]
         if self.topology == "cascade":
             d["rectifier"]["stages"] = self.stages
         return d
@@ -97,10 +104,12 @@ class Case:
             leakage=self.leakage, winding_snubber=snubber(self.leakage) if self.leakage else None,
             choke=Choke(self.choke[0], snubber(self.choke[0]), self.choke[1]) if self.choke else None,
             tie=TIE if self.topology in ("bridge", "doubler") else 0.0,
+            filters=tuple(Section(kind, value) for kind, value in self.filters),  # type: ignore[arg-type]
         )
 
 
 W50 = 2 * math.pi * 50.0
+SLOW_CRC = "bridge, CRC, bleeder only"
 
 
 def hard(topology: str, vrms: float, rs_over_rl: float, wcr: float, rl: float, stages: int = 1) -> Case:
@@ -131,6 +140,11 @@ CASES: list[Case] = [
     Case("half-wave, leakage 5 mH", "half-wave", 120.0, 60.0, 5.0, 220e-6, 1e3, leakage=5e-3),
     Case("centre-tap, leakage 20 mH", "centre-tap", 250.0, 50.0, 10.0, 100e-6, 3e3, leakage=20e-3),
     Case("bridge, leakage 20 mH", "bridge", 250.0, 50.0, 10.0, 100e-6, 2e3, leakage=20e-3),
+    # A CRC filter: loaded (output time constant 47 uF x 833 ohm = 39 ms), and idle with only a bleeder
+    # (the cold-load corner of tests/test_checks.py: 47 k x 100 uF = 4.7 s).
+    Case("bridge, CRC, loaded", "bridge", 250.0, 50.0, 25.0, 100e-6, 5e3, filters=(("r", 1e3), ("c", 47e-6))),
+    Case(SLOW_CRC, "bridge", 330.0, 50.0, 30.0, 47e-6, 47e3, filters=(("r", 470.0), ("c", 100e-6)),
+         bleeder_only=True, engine_issue=("ripple_pp_v",)),
 ]
 IDS = [c.name for c in CASES]
 
@@ -225,8 +239,22 @@ def show(case: Case, rows: list[tuple[str, float, float, float, float]]) -> None
 def test_steady_state_and_switch_on_agree_with_the_refsolver(case: Case) -> None:
     rows = comparison(case, simkit_result(case))
     show(case, rows)
-    bad = outside(rows)
+    bad = outside([row for row in rows if row[0] not in case.engine_issue])
     assert not bad, f"{case.name}: " + "; ".join(bad)
+
+
+# --- ENGINE ISSUES: one assertion each, at the tolerance the issue demands, until the engine meets it -------
+
+
+def test_engine_issue_slow_crc_output_ripple_pp_agrees_with_the_refsolver() -> None:
+    # FAILS with the July 2026 engine: +1.30 % (ripple RMS agrees within 0.06 %, every other figure within
+    # 0.03 %).  The output of this idle CRC supply settles with 47 k x 100 uF = 4.7 s; at the default
+    # settle_tolerance (1e-4) the steady state is declared while it still drifts, and the drift over the
+    # two measured periods adds to the peak-to-peak ripple of 51 mV.  With settle_tolerance = 1e-6 the same
+    # design agrees within 0.011 %.
+    case = next(c for c in CASES if c.name == SLOW_CRC)
+    simkit_ripple = simkit_result(case).metrics["ripple_pp_v"]
+    assert simkit_ripple == pytest.approx(reference(case).ripple_pp, rel=TOLERANCE["ripple"])
 
 
 # --- the comparisons can fail: perturbed decks -------------------------------------------------------------
