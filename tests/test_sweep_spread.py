@@ -79,7 +79,7 @@ def test_summary_percentiles_and_extremes() -> None:
     assert r["p50"] == pytest.approx(2.8)
     assert (r["min"], r["min_run"], r["max"], r["max_run"]) == (1.0, 1, 9.0, 4)
     assert s["runs_ok"] == 6 and s["runs_failed"] == 1 and "pass_fraction" not in s
-    # --check: the share of runs that pass every rule (issue 6), and the rules that fail most
+    # --check: the share of runs that pass every rule (docs/reference.md), and the rules that fail most
     verdicts = ["pass", "marginal", "fail", "pass", "pass", "fail"]
     for e, v in zip(entries, verdicts, strict=False):
         e["check"] = v
