@@ -87,12 +87,11 @@ def test_sine_with_offset_over_whole_periods() -> None:
 
 
 def test_square_wave_rms_and_mean_are_exact() -> None:
-    # A square wave of +V for a quarter period and -V for the rest, with its edges 1 us wide and every
-    # corner on the grid: the mean of y is exact for the trapezoidal rule (piecewise linear) and
-    # (V/T)(T/4 - 3T/4) = -V/2 to within the edges' shares, which cancel here (two symmetric edges).
+    # A square wave of +V for a quarter period and -V for the rest, its edges 1 us wide and every corner on
+    # the grid: y is piecewise linear, so the trapezoidal rule gives its mean exactly.  On [0, T]: +V from 0,
+    # a fall across T/4 (its linear halves cancel), -V, and half of the next rise, from -V to 0 over e/2.
     v, e = 10.0, 1e-6
     corners = (0.0, T / 4 - e / 2, T / 4 + e / 2, T - e / 2, T)
-    # y on [0, T]: +V from 0, falls across T/4, -V, rises across T (the next period's +V at T + e/2).
     t = uneven(0.0, T, 5000, seed=3, extra=corners)
 
     def square(tt: np.ndarray) -> np.ndarray:
@@ -101,9 +100,8 @@ def test_square_wave_rms_and_mean_are_exact() -> None:
         return v * (1.0 - 2.0 * down + 2.0 * up)
 
     y = square(t)
-    # Exact mean: (V (T/4) - V (3T/4)) / T, the two edges' linear halves adding nothing net except the last
-    # half edge (T - e/2 .. T), where y rises from -V to 0: its area is -V e/4.
-    expected_mean = (v * (T / 4) - v * (3 * T / 4 - e / 2) - v * e / 4) / T
+    # Exact mean: the plateaus V (T/4 - e/2) and -V (3T/4 - e), the half rise -V e/4, over T.
+    expected_mean = (v * (T / 4 - e / 2) - v * (3 * T / 4 - e) - v * e / 4) / T
     assert mx.mean(t, y, 0.0, T) == pytest.approx(expected_mean, rel=1e-12)
     # The RMS: y^2 = V^2 except across the edges, where it dips; with the edges 1 us of 20 ms the RMS is V
     # less at most e/T of it.  The extremes are exact.
