@@ -8,7 +8,8 @@ imports simkit, PySpice or ngspice.
 Circuits
 --------
 The source is ``Vs(t) = sqrt(2) * vrms * sin(2*pi*f*t + phase)`` in series with ``Rs``
-in every winding; ``RL`` is the load across the output and every capacitor is ``C``.
+in every winding; ``RL`` is the load across the output and every capacitor of the
+rectifier is ``C``.
 Node 0 is ground and "a->b" is a diode with anode ``a`` and cathode ``b``. The node
 names are those the nodal formulation (below) uses.
 
@@ -54,7 +55,7 @@ At a given instant the capacitors act as voltage sources and the inductors as cu
 sources, so what remains is a resistive network of the windings' EMFs and
 resistances, the resistors and the diodes. Two formulations solve it.
 
-*Reduced* (capacitor input without leakage or ties; the default there). In every
+*Reduced* (capacitor input without leakage, ties or filter sections; the default there). In every
 circuit above that network reduces to one scalar node equation (two independent ones
 for the centre-tap) in a node voltage ``x``::
 
@@ -472,8 +473,9 @@ class Circuit:
     rl : float
         Load resistance (ohm), > 0.
     c : float
-        Every capacitor of the rectifier and filter (F), > 0; with a choke, the
-        capacitor after it.
+        Every capacitor of the rectifier (the reservoir, or each doubler and cascade
+        capacitor), or with a choke the capacitor after it (F), > 0; further filter
+        sections carry their own values.
     diode : Diode
         Diode law, used for every diode.
     stages : int
@@ -613,7 +615,8 @@ class SteadyState:
         Highest absolute winding current (A).
     inductor_current : numpy.ndarray
         Inductor currents at ``time``, shape ``(n_inductors, len(time))`` (A): the
-        leakage inductances (one per winding) and then the choke.
+        leakage inductances (one per winding), then the choke, then any inductor of
+        the filter sections.
     """
 
     vdc: float  # V
