@@ -41,7 +41,7 @@ TIE = 10e6  # ohm: build.py ties both ends of a floating winding to ground throu
 SNUB_C = 10e-9  # F: build.py's snubber capacitor
 
 #: Relative tolerance per figure class: a modest factor (3 to 7) above the largest disagreement measured
-#: over CASES (July 2026 engine; docs/testing.md has the table and the command): Vdc 0.002 %, PIV 0.0007 %,
+#: over CASES (the engine of main at fe93872; docs/testing.md has the table and the command): Vdc 0.002 %, PIV 0.0007 %,
 #: ripple 0.17 %, diode, winding and choke currents 0.083 %, capacitor ripple current 0.068 %, surge current
 #: and I2t 0.078 %.  Never looser than the ceilings of the issue that set them: Vdc and PIV 0.2 %, ripple
 #: and currents 0.5 %, surge 0.5 %.
@@ -248,7 +248,7 @@ def test_steady_state_and_switch_on_agree_with_the_refsolver(case: Case) -> None
 
 
 def test_engine_issue_slow_crc_output_ripple_pp_agrees_with_the_refsolver() -> None:
-    # FAILS with the July 2026 engine: +1.30 % (ripple RMS agrees within 0.06 %, every other figure within
+    # FAILS with the engine of main at fe93872: +1.30 % (ripple RMS agrees within 0.06 %, every other figure within
     # 0.03 %).  The output of this idle CRC supply settles with 47 k x 100 uF = 4.7 s; at the default
     # settle_tolerance (1e-4) the steady state is declared while it still drifts, and the drift over the
     # two measured periods adds to the peak-to-peak ripple of 51 mV.  With settle_tolerance = 1e-6 the same
