@@ -1,7 +1,7 @@
 """Stand-in point evaluations for testing the sweep machinery without a simulator.
 
 They run in spawned worker processes, so they live in an importable module.  The figure is a
-plain function of the design (``vout_dc_v`` = sqrt(2) x vrms, REFERENCES formula 1), so a test can
+plain function of the design (``vout_dc_v`` = sqrt(2) x vrms, the crest of the sine), so a test can
 tell that each row holds its own point's result; chosen ``source.vrms`` values misbehave:
 
 - 555: raises a SimulationError (a point that does not converge);

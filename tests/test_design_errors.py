@@ -1,7 +1,7 @@
 """Every mistake a user can make in a design file: exit code 2, one message, no traceback.
 
 The message names the file, the key (dotted, as ``--set`` spells it) and what was expected
-(SPEC section 1).  The simulator is replaced by a trap in every test here: each mistake
+(docs/reference.md).  The simulator is replaced by a trap in every test here: each mistake
 must be caught while the design is read, before anything is simulated, so these tests
 need no ngspice and run in well under a second each.
 """

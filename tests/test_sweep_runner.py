@@ -1,7 +1,7 @@
 """The sweep machinery without a simulator: failures, dying and hanging workers, resume, guards.
 
 Points are evaluated by the stand-ins of tests/sweep_helpers.py in real spawned worker processes.
-What is expected comes from issue 6 and SPEC.md section 1: one row per point, no point lost or
+What is expected comes from docs/reference.md (Sweeps): one row per point, no point lost or
 duplicated, a failed point recorded with its error while the sweep goes on, another sweep's
 results never replaced without --force, exit 2 for bad input.
 """
@@ -56,7 +56,7 @@ def test_failing_dying_and_hanging_points_do_not_stop_the_sweep(design: Path, tm
     got = {float(r["source.vrms"]): r for r in rows(out)}
     assert list(got) == [100, 555, 666, 444, 777, 300]  # one row per point, in point order
     for v in (100.0, 300.0, 444.0):
-        # the stand-in's figure is sqrt(2) x vrms (REFERENCES formula 1): each row holds its own point
+        # plumbing: the stand-in's figure is sqrt(2) x vrms (tests/sweep_helpers.py), so each row holds its own point
         assert float(got[v]["vout_dc_v"]) == pytest.approx(math.sqrt(2) * v, rel=1e-12)
         assert got[v]["error"] == ""
     assert "did not complete" in got[555]["error"]
@@ -143,7 +143,7 @@ def test_csv_columns_and_zip(design: Path, tmp_path: Path) -> None:
     out = tmp_path / "out"
     sweep(design, out, ["filter.0.c=10u,20u", "load.r=1k,2k"], paired=True)
     header = (out / "sweep.csv").read_text("utf-8").splitlines()[0].split(",")
-    # issue 6: the varied values named by PATH, then every figure, then the error column
+    # docs/reference.md (sweep.csv): the varied values named by PATH, then every figure, then the error column
     assert header == ["point", "filter.0.c", "load.r", "vout_dc_v", "ripple_pp_v", "warnings", "error"]
     got = rows(out)
     assert [(float(r["filter.0.c"]), float(r["load.r"])) for r in got] == [(10e-6, 1000.0), (20e-6, 2000.0)]
@@ -158,5 +158,5 @@ def test_workers_that_cannot_start_stop_the_run_with_exit_3(design: Path, tmp_pa
                       prepare=prepare)  # type: ignore[arg-type]
     with pytest.raises(SimulationError, match=words) as info:
         run_sweep(design, ["load.r=1k,2k,3k"], opts)
-    assert info.value.exit_code == 3  # SPEC section 1: the simulation could not be completed
+    assert info.value.exit_code == 3  # the simulation could not be completed (docs/reference.md, exit codes)
     assert journal_points(tmp_path / "out") == []  # no point blamed for it

@@ -1,7 +1,7 @@
 """--vary parsing, ranges, grids and pairs, and how points become designs or error rows (no simulator).
 
 Reference for the steps: numpy's own ``linspace`` and ``geomspace`` (independent of simkit), and
-SPEC.md section 1 for the SPEC syntax (``22u,47u,100u``, ``START:STOP:COUNT``, ``10u:1m:9log``).
+docs/reference.md for the --vary syntax (``22u,47u,100u``, ``START:STOP:COUNT``, ``10u:1m:9log``).
 """
 
 from __future__ import annotations
@@ -22,7 +22,7 @@ def test_list_spec_keeps_items_as_set_reads_them() -> None:
     spec = parse_vary("filter.0.c=22u,47u,100u")
     assert spec.path == "filter.0.c" and spec.kind == "list"
     assert spec.values == ("22u", "47u", "100u")
-    # SI in result files: 22u is 22e-6 (SPEC section 2: SI suffixes, u = micro)
+    # SI in result files: 22u is 22e-6 (the SI prefix micro, docs/reference.md)
     assert [si_value(v) for v in spec.values] == pytest.approx([22e-6, 47e-6, 100e-6], rel=1e-15)
     assert parse_vary("rectifier.diode=1N4007,UF4007").values == ("1N4007", "UF4007")
     assert parse_vary("rectifier.stages=1,2,3").values == (1, 2, 3)
@@ -118,6 +118,6 @@ def test_cli_refuses_an_unknown_path_without_writing(tmp_path: Path, capsys: pyt
     out = tmp_path / "out"
     with pytest.raises(SystemExit) as info:
         main(["sweep", str(design), "--vary", "filter.0.cc=1u,2u", "--out", str(out)])
-    assert info.value.code == 2  # SPEC section 1: bad input is exit 2
+    assert info.value.code == 2  # bad input is exit 2 (docs/reference.md, exit codes)
     assert "filter.0.cc" in capsys.readouterr().err
     assert not out.exists()

@@ -201,8 +201,14 @@ def test_a_unit_symbol_for_a_bare_number_is_refused() -> None:
 def test_garbage_is_refused(text: str) -> None:
     with pytest.raises(UnitError) as info:
         parse_value(text, "F")
-    # The message shows what the user should write instead.
-    assert "capacitance" in str(info.value) or "finite" in str(info.value)
+    # The message quotes what was written and, unless it is a number too large for a float, shows what
+    # the user should write instead.
+    message = str(info.value)
+    assert message.startswith(repr(text))
+    if text in ("1e999", "1e999k"):
+        assert message == f"{text!r} is not a finite number"
+    else:
+        assert 'expected a capacitance such as "100u" or "47uF"' in message
 
 
 def test_unknown_suffix_message_names_the_suffix_and_the_prefixes() -> None:
@@ -286,11 +292,9 @@ def test_control_characters_in_percent_are_refused(text: str) -> None:
 
 def test_exact_decimal_results() -> None:
     # Each right-hand side is the float nearest the decimal value; naive float
-    # arithmetic (mantissa * 1e-6) misses several of these by one ulp.
+    # arithmetic (mantissa * 1e-6) misses several of these by one ulp (3.3 * 1e-6, for one).
     assert parse_value("100u") == 1e-4
-    assert parse_value("100u") == 0.0001
     assert parse_value("1.1m") == 0.0011
-    assert 3.3 * 1e-6 != 3.3e-6  # why the decimal route matters: naive scaling is one ulp off
     assert parse_value("3.3u") == 3.3e-6
     assert parse_value("4.7u") == 4.7e-6
     assert parse_value("3.3n") == 3.3e-9
@@ -391,10 +395,9 @@ def test_spice_round_trips_through_the_parser() -> None:
         assert parse_value(spice(v)) == v, (v, spice(v))
 
 
-def test_spice_is_deterministic_and_plain_ascii() -> None:
+def test_spice_is_plain_ascii() -> None:
     for v in (1e-4, 0.22, 1e6, 4.7e-6, 353.5533905932738, 1 / 3):
         text = spice(v)
-        assert text == spice(v)
         assert text.isascii()
         assert " " not in text
         assert "\n" not in text
