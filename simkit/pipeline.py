@@ -13,7 +13,7 @@ from simkit.analysis import metrics as mx
 from simkit.analysis import plan
 from simkit.analysis.keyed import KeyedRun, keyed_steady
 from simkit.analysis.runs import Run, end_nodes, end_state, transient
-from simkit.analysis.startup import start_limit, switch_on
+from simkit.analysis.startup import SURGE_FIRST_STEP, start_limit, switch_on
 from simkit.analysis.steady import MEASURE_PERIODS, Progress, Solution, SteadyState, steady_state
 from simkit.design.loader import design_to_inputs
 from simkit.design.model import Design
@@ -287,9 +287,16 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
         vrev_on = sw.v(d.cathode) - sw.v(d.anode)
         # The fine first periods, and the coarse period with the highest current simulated again finely
         # (switch_on only skips that when the coarse part stayed well below the first periods).
-        surge = float(np.max(i_on[: np.searchsorted(ts, start.deck_span or s1, side="right")]))
+        fine_end = np.searchsorted(ts, start.deck_span or s1, side="right")
+        surge = float(np.max(i_on[:fine_end]))
+        # I2t from fine samples: the first periods, or the refined period when its peak is the highest.
+        i2t = _surge_i2t(ts[:fine_end], np.maximum(i_on[:fine_end], 0.0), T, s0, float(ts[fine_end - 1]))
         if refined is not None:
-            surge = max(surge, float(np.max(refined.waves.i(d.sense))))
+            rw = refined.waves
+            i_ref = np.maximum(rw.i(d.sense), 0.0)
+            if float(np.max(i_ref)) > surge:
+                surge = float(np.max(i_ref))
+                i2t = _surge_i2t(rw.time, i_ref, T, float(rw.time[0]), float(rw.time[-1]))
         parts[d.name] = {
             "role": "rectifier plate (vacuum)" if vac is not None else "rectifier diode",
             "peak_a": mx.peak(t, i, t0, t1),
@@ -297,7 +304,7 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
             "rms_a": mx.rms(t, i, t0, t1),
             "piv_v": mx.peak(t, vrev, t0, t1),
             "surge_peak_a": surge,
-            "surge_i2t_a2s": _surge_i2t(ts, np.maximum(i_on, 0.0), T, s0, s1),
+            "surge_i2t_a2s": i2t,
             "switch_on_piv_v": float(np.max(vrev_on)),
         }
     diode_parts = [parts[d.name] for d in circuit.diodes]
@@ -712,5 +719,5 @@ def switch_on_deck(result: RunResult) -> str:
     meas += [f".meas tran cap_peak_v_{c.name.lower()} MAX v({c.plus},{c.minus})" if c.minus != "0"
              else f".meas tran cap_peak_v_{c.name.lower()} MAX v({c.plus})"
              for c in circuit.capacitors if c.is_part]
-    tran = transient(d, circuit, run.deck_span or run.tstop, run.steps, safe=run.retried)
+    tran = transient(d, circuit, run.deck_span or run.tstop, run.steps, safe=run.retried, first=SURGE_FIRST_STEP)
     return render(circuit, tran, run.ics, meas, header)

@@ -207,12 +207,13 @@ def test_choke_input_gives_2vpk_over_pi_less_the_drops() -> None:
     # Full-wave choke input above the critical inductance (R_L/(3 omega) = 3.2 H here, tests/closed_forms.py):
     # Vdc = 2 Vpk/pi, the mean of a full-wave rectified sine, less the winding drop (with its commutation
     # overlap), the choke's DCR drop and the diode's forward drop at the DC current (tests/closed_forms.py,
-    # derived here).  Measured within 0.0001 %; the formula's own error from the finite 20 H is about 1e-5.
+    # derived here).  Measured within 0.006 % (the automatic step: 200 per period); the formula's own error from
+    # the finite 20 H is about 1e-5.
     vrms, rs, dcr, rl = 300.0, 20.0, 100.0, 3e3
     r = run("centre-tap", vrms=vrms, rs=rs, rl=rl, filters=[{"l": 20.0, "dcr": dcr}, {"c": 100e-6}])
     v_f = float(REF_NEAR_IDEAL.voltage(r.metrics["iout_dc_a"]))
     assert r.metrics["vout_dc_v"] == pytest.approx(choke_input_vdc("centre-tap", SQ2 * vrms, rs, dcr, rl, v_f),
-                                                   rel=5e-5)
+                                                   rel=2e-4)
 
 
 def _harmonic(t: np.ndarray, y: np.ndarray, f: float, t0: float, t1: float) -> float:

@@ -162,8 +162,9 @@ def test_inverter_waveform_rms_and_peak(waveform: str, peak: float) -> None:
     # A three-level wave of peak Vp at +-Vp for a fraction d of the time has RMS Vp sqrt(d) (definition of
     # RMS); simkit sets d so that the RMS equals vrms.  A square wave's RMS is its peak.  With no battery the
     # open-circuit EMF is exact.  Measured: RMS 0.12 % low for the square and modified-sine waves (their
-    # edges, T/500 long, and the trapezoid rule across them on the simulator's steps), 6e-8 for the sine;
-    # peaks within 1e-7.
+    # edges, T/500 long, and the trapezoid rule across them on the simulator's steps), 6e-8 for the sine.
+    # Peaks: the highest sample of a sine sampled at least every 1/steps of its period lies below its crest
+    # by at most 1 - cos(pi/steps) (derived here): 3.4e-5 measured at 200 steps; the flat tops exactly.
     toml = INVERTER_TOML.replace('waveform = "modified-sine"', f'waveform = "{waveform}"')
     toml = toml[: toml.index("[battery]")] + toml[toml.index("[rectifier]"):]
     design = design_from_dict(parse_toml_text(toml))
@@ -172,7 +173,8 @@ def test_inverter_waveform_rms_and_peak(waveform: str, peak: float) -> None:
     t0, t1 = r.window
     emf = w.v("w1q") - w.v("ac2")
     assert mx.rms(w.time, emf, t0, t1) == pytest.approx(230.0, rel=3e-3)
-    assert mx.peak(w.time, emf, t0, t1) == pytest.approx(peak, rel=1e-6)
+    sampled = 1 - math.cos(math.pi / r.steady.steps) if waveform == "sine" else 0.0
+    assert peak * (1 - sampled) - 1e-6 * peak <= mx.peak(w.time, emf, t0, t1) <= peak * (1 + 1e-6)
 
 
 @pytest.mark.ngspice

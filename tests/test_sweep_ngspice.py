@@ -124,13 +124,15 @@ def test_a_killed_sweep_resumes_without_losing_or_duplicating_points(tmp_path: P
     # numpy.geomspace is the independent reference for the log steps of 47u..470u
     assert np.allclose([float(r["filter.0.c"]) for r in rows], np.geomspace(47e-6, 470e-6, n), rtol=1e-13, atol=0)
     assert all(r["error"] == "" for r in rows)
-    # Plumbing: each row holds its own point's figures, the same as a run of that point alone (to the
-    # 7 digits the CSV gives the steady figures here: same deck, same ngspice).
-    for row in (rows[0], rows[-1]):
+    # Plumbing: each row holds its own point's figures.  The first point starts from the closed-form estimate
+    # as a run alone does: the same to the 7 digits the CSV gives.  Later points start from their solved
+    # neighbour (docs/reference.md, How simkit simulates) and may settle on the step the neighbour verified:
+    # the same within the accuracy the step is chosen for (0.05 % on DC, 0.5 % on ripple).
+    for row, tol in ((rows[0], (1e-6, 1e-6)), (rows[-1], (5e-4, 5e-3))):
         alone = simulate(design_from_dict(apply_overrides(parse_toml_text(TINY.format(rs="25")),
                                                           [f"filter.0.c={row['filter.0.c']}"], "tiny.toml")))
-        for key in ("vout_dc_v", "ripple_pp_v"):
-            assert float(row[key]) == pytest.approx(alone.metrics[key], rel=1e-6), key
+        for key, rel in zip(("vout_dc_v", "ripple_pp_v"), tol, strict=True):
+            assert float(row[key]) == pytest.approx(alone.metrics[key], rel=rel), key
     # The ripple falls as C grows (a larger capacitor discharges less between pulses).
     ripple = [float(r["ripple_pp_v"]) for r in rows]
     assert all(b < a for a, b in itertools.pairwise(ripple))

@@ -40,18 +40,20 @@ REF_DIODE = Diode(model="exponential", i_s=IS, n=N, r_d=RS)
 TIE = 10e6  # ohm: build.py ties both ends of a floating winding to ground through 10 Meg
 SNUB_C = 10e-9  # F: build.py's snubber capacitor
 
-#: Relative tolerance per figure class: a modest factor (3 to 7) above the largest disagreement measured
-#: over CASES (the engine of main at fe93872; docs/testing.md has the table and the command): Vdc 0.002 %, PIV 0.0007 %,
-#: ripple 0.17 %, diode, winding and choke currents 0.083 %, capacitor ripple current 0.068 %, surge current
-#: and I2t 0.078 %.  Never looser than the ceilings of the issue that set them: Vdc and PIV 0.2 %, ripple
-#: and currents 0.5 %, surge 0.5 %.
+#: Relative tolerance per figure class: a modest factor (2 to 5) above the largest disagreement measured
+#: over CASES with the engine that chooses its step by accuracy (docs/testing.md has the table and the
+#: command): Vdc 0.011 %, PIV 0.012 %, ripple 0.25 %, diode, winding and choke currents 0.075 %, capacitor
+#: ripple current 0.07 %, surge current 0.02 %, surge I2t 0.33 % (a half period around a peak whose place
+#: moves with the samples on a broad choke-input surge).  Never looser than the ceilings of the issue that
+#: set them: Vdc and PIV 0.2 %, ripple and currents 0.5 %, surge 0.5 %.
 TOLERANCE: dict[str, float] = {
-    "vdc": 1e-4,
-    "piv": 5e-5,
+    "vdc": 5e-4,
+    "piv": 5e-4,
     "ripple": 5e-3,
     "current": 2.5e-3,
     "capacitor": 2.5e-3,
-    "surge": 2.5e-3,
+    "surge": 1e-3,
+    "i2t": 5e-3,
 }
 
 
@@ -220,7 +222,7 @@ def comparison(case: Case, result: RunResult) -> list[tuple[str, float, float, f
     on = reference_switch_on(case)
     rows.append(("surge_peak_a", m["surge_peak_a"], on.surge, TOLERANCE["surge"]))
     i2t = max(p["surge_i2t_a2s"] for name, p in result.parts.items() if name in {d.name for d in result.circuit.diodes})
-    rows.append(("surge I2t", i2t, surge_i2t(on, 1 / case.f), TOLERANCE["surge"]))
+    rows.append(("surge I2t", i2t, surge_i2t(on, 1 / case.f), TOLERANCE["i2t"]))
     return [(k, s, r, s / r - 1.0, tol) for k, s, r, tol in rows]
 
 

@@ -36,54 +36,45 @@ class Run:
     steps: int = 0  # steps per period (the maximum time step is period / steps)
 
 
-def transient(design: Design, circuit: Circuit, tstop: float, steps: int, safe: bool = False) -> Transient:
-    """The ``.tran`` of a span: maximum step one period / ``steps``."""
+def transient(design: Design, circuit: Circuit, tstop: float, steps: int, safe: bool = False,
+              first: float | None = None) -> Transient:
+    """The ``.tran`` of a span: maximum step one period / ``steps``; ``first`` makes ngspice's first step
+    about a hundredth of it (the switch-on surge peaks at the very start)."""
     sim = design.simulation
     tmax = circuit.period / steps
+    tstep = tmax * first if first is not None else tmax
     if safe:
         return Transient(tstop=tstop, tmax=tmax, reltol=max(sim.reltol, 1e-3), abstol=1e-8,
-                         method="gear", extra_options=SAFE_OPTIONS)
-    return Transient(tstop=tstop, tmax=tmax, reltol=sim.reltol)
+                         method="gear", extra_options=SAFE_OPTIONS, tstep=tstep)
+    return Transient(tstop=tstop, tmax=tmax, reltol=sim.reltol, tstep=tstep)
 
 
 def run_span(engine: Engine, design: Design, circuit: Circuit, tstop: float, ics: dict[str, float],
-             steps: int, meas: list[str] | None = None, offset: float = 0.0) -> Run:
+             steps: int, meas: list[str] | None = None, offset: float = 0.0, first: float | None = None) -> Run:
     """Run one span from ``ics``; on convergence trouble retry once with safer options, then give up.
 
     ``offset`` is the absolute time since switch-on at which the span starts (time functions
     such as keying continue from there).
     """
-    deck = render(circuit, transient(design, circuit, tstop, steps), ics, meas, offset=offset)
+    deck = render(circuit, transient(design, circuit, tstop, steps, first=first), ics, meas, offset=offset)
     try:
-        return Run(deck, tstop, _solved(engine.run(deck, tstop)), ics, offset=offset, steps=steps)
-    except SimulationError as first:
-        safe_deck = render(circuit, transient(design, circuit, tstop, steps, safe=True), ics, meas, offset=offset)
+        return Run(deck, tstop, engine.run(deck, tstop), ics, offset=offset, steps=steps)
+    except SimulationError as failed:
+        safe_deck = render(circuit, transient(design, circuit, tstop, steps, safe=True, first=first), ics, meas,
+                           offset=offset)
         try:
-            return Run(safe_deck, tstop, _solved(engine.run(safe_deck, tstop)), ics, retried=True, offset=offset,
+            return Run(safe_deck, tstop, engine.run(safe_deck, tstop), ics, retried=True, offset=offset,
                        steps=steps)
         except SimulationError as second:
             raise SimulationError(
                 f"ngspice could not complete the simulation of {design.origin} "
                 f"(also not with safer options: {', '.join(SAFE_OPTIONS)}, method=gear)",
                 deck=second.deck,
-                log=second.log or first.log,
+                log=second.log or failed.log,
                 hint="give the winding a series resistance (source.resistance), give chokes "
                 "their dcr and capacitors their esr, or check the part values for typing errors "
                 "(for example mF instead of uF)",
             ) from None
-
-
-def _solved(waves: Waveforms) -> Waveforms:
-    """The run without its t = 0 sample.
-
-    With ``uic`` ngspice does not solve the circuit at t = 0: that sample holds the initial
-    conditions as given, and 0 V (or the ``.ic`` value) on every node without a state, so a
-    load's or a diode's current there is not the circuit's.  The first solved sample follows a
-    tiny step later.
-    """
-    if len(waves.time) < 3:
-        return waves
-    return Waveforms(time=waves.time[1:], vectors={k: v[1:] for k, v in waves.vectors.items()}, log=waves.log)
 
 
 def state_names(circuit: Circuit) -> list[str]:

@@ -23,13 +23,15 @@ from simkit.netlist.circuit import Circuit
 
 #: Steps per period of the smooth part of a start-up run.
 COARSE_STEPS = 50
+#: ... and when load steps are simulated: the step figures (sag, recovery) are read off this run.
+STEPPED_STEPS = 200
 #: Periods of a start-up run at the measuring step (the surge is in the first of them).
 FINE_START_PERIODS = 1
-#: The surge period runs at the measuring step, but at most this fine (unless the design fixes
-#: ``steps_per_period``): the surge is one broad pulse
-#: (the empty capacitors charging over most of a half cycle), accurate to 0.1 % at 200 steps per
-#: period on every topology (tests/test_steps.py).
-START_FINE_STEPS = 200
+#: The surge run's first time step, as a share of its maximum step (ngspice starts at about a hundredth of
+#: the .tran step): a crest switch-on peaks at the very first instant.
+SURGE_FIRST_STEP = 0.01
+#: The most steps per period the surge run takes (twice the measuring step, up to this).
+SURGE_MAX_STEPS = 4000
 #: Periods per chunk of the coarse part.
 COARSE_CHUNK = 5
 #: The start-up run stops at the latest after this many periods, or 60 s (or three times the
@@ -54,6 +56,11 @@ def overshoot_span(design: Design, circuit: Circuit) -> float:
         if ind.role == "choke" and c_total > 0:
             span = max(span, 0.75 * 2 * math.pi * math.sqrt(ind.value * c_total))
     return min(span, max(FINE_START_PERIODS * T, 3.0))
+
+
+def coarse_steps(design: Design) -> int:
+    """Steps per period of the start-up run after its first period."""
+    return STEPPED_STEPS if any(ld.kind == "steps" for ld in design.loads) else COARSE_STEPS
 
 
 def timeline_end(design: Design) -> float:
@@ -88,12 +95,13 @@ def switch_on(engine: Engine, design: Design, circuit: Circuit, steps: int, targ
     timeline runs; ``simulation.switch_on_time`` fixes the span instead.
     """
     T = circuit.period
-    if design.simulation.steps_per_period is None:
-        steps = min(steps, START_FINE_STEPS)
     zero = {e.name: 0.0 for e in circuit.state_elements()}
     fixed = design.simulation.switch_on_time
     fine = fixed if fixed is not None else FINE_START_PERIODS * T
-    first = run_span(engine, design, circuit, fine, zero, steps)
+    # The surge charges empty capacitors through the winding resistance alone: a steeper pulse than the
+    # steady ones the measuring step was chosen for, so its periods run at twice that many steps.
+    surge_steps = steps if design.simulation.steps_per_period is not None else min(2 * steps, SURGE_MAX_STEPS)
+    first = run_span(engine, design, circuit, fine, zero, surge_steps, first=SURGE_FIRST_STEP)
     pieces = [first]
     if progress is not None:
         progress("switch-on", fine, None)
@@ -108,7 +116,7 @@ def switch_on(engine: Engine, design: Design, circuit: Circuit, steps: int, targ
         chunk = COARSE_CHUNK * T
         means: list[float] = []
         while t < limit - 1e-12:
-            run = run_span(engine, design, circuit, chunk, state, COARSE_STEPS, offset=t)
+            run = run_span(engine, design, circuit, chunk, state, coarse_steps(design), offset=t)
             t += chunk
             state = {**end_state(circuit, run.waves), **end_nodes(circuit, run.waves)}
             v = run.waves.v(out)
@@ -128,11 +136,12 @@ def switch_on(engine: Engine, design: Design, circuit: Circuit, steps: int, targ
                 break
     if len(pieces) == 1:
         first.deck_span = fine
+        first.steps = surge_steps
         return first
     merged = merge(pieces)
-    refined = _refine_surge(engine, design, circuit, first, pieces[1:], steps)
+    refined = _refine_surge(engine, design, circuit, first, pieces[1:], surge_steps)
     return Run(first.deck, float(merged.time[-1]), merged, zero, retried=any(p.retried for p in pieces),
-               deck_span=fine, refined=refined, steps=steps)
+               deck_span=fine, refined=refined, steps=surge_steps)
 
 
 def _refine_surge(engine: Engine, design: Design, circuit: Circuit, first: Run, coarse: list[Run],

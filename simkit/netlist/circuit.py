@@ -161,6 +161,7 @@ class Transient:
     vntol: float = 1e-6
     method: str = "trap"
     extra_options: tuple[str, ...] = ()
+    tstep: float | None = None  # s, the .tran step (ngspice's first step is about tstep/100); None: tmax
 
 
 _SAFE = re.compile(r"[^A-Za-z0-9 _\-.,:;()/+=%'\[\]]")
@@ -217,7 +218,7 @@ def render(
     opts = [f"reltol={spice(tran.reltol)}", f"abstol={spice(tran.abstol)}", f"vntol={spice(tran.vntol)}",
             f"method={tran.method}", *tran.extra_options]
     lines.append(".options " + " ".join(opts))
-    tstep = tran.tmax
+    tstep = tran.tstep if tran.tstep is not None else tran.tmax
     lines.append(f".tran {spice(tstep)} {spice(tran.tstop)} 0 {spice(tran.tmax)} uic")
     lines.extend(meas or [])
     lines.append(".end")
