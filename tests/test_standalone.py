@@ -31,12 +31,14 @@ from simkit.parts import catalogue, diodes, regulators, tubes
 ROOT = Path(__file__).resolve().parent.parent
 DOCS = ROOT / "docs"
 
-#: The internal notes, spelled so that this file does not match itself.
+#: The internal notes (references, engine measurements, style, specification), spelled in pieces so
+#: that this file does not match itself.  The specification's name is also an ordinary word of the
+#: command line (``--vary PATH=SPEC``), so only its file name and "... section N" count.
 _NOTES = re.compile(
-    r"\bREFERENCES\b"  # the references notes ("REFERENCES formula 19", "... .md section 5")
-    r"|ENGINE[-_ ]NOTES"  # the engine notes
-    r"|\bSTYLE\.md\b"  # the style notes
-    r"|\bSPEC(?:\.md\b|\s+(?:section|order)\b|\s*§)"  # the specification ("SPEC section 1")
+    r"\b" + "REFER" + r"ENCES\b"
+    + r"|" + "ENGINE" + r"[-_ ]NOTES"
+    + r"|\b" + "STY" + r"LE\.md\b"
+    + r"|\b" + "SP" + r"EC(?:\.md\b|\s+(?:section|order)\b|\s*§)"
 )
 
 #: Forum, blog, slide and aggregator sources found cited in the past; none may come back.
