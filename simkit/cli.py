@@ -1,4 +1,4 @@
-"""The command line: parse, call the pipeline, print.  Exit codes as SPEC.md section 1."""
+"""The command line: parse, call the pipeline, print.  Exit codes as docs/reference.md, "Exit codes"."""
 
 from __future__ import annotations
 

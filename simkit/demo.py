@@ -49,7 +49,7 @@ results/
 | `report.md` | for build notes and wikis: links `NAME.png` (and `NAME.svg` for print) beside it |
 | `*.png` / `*.svg` | every picture in both formats: PNG for documents and screens, SVG for print |
 | `deck.cir` | runnable as it is: `ngspice -b deck.cir` prints the figures as `.meas` results |
-| `result.json` | the figures of SPEC section 3, keyed as `simkit run --json` prints them |
+| `result.json` | the figures of docs/reference.md (Figures), keyed as `simkit run --json` prints them |
 
 File names are fixed, so documents can link to them, and running `simkit demo` again
 writes the same files.  `simkit report DESIGN --out DIR` writes the same report for your

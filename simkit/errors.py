@@ -1,4 +1,4 @@
-"""Errors that reach the user, each with its exit code (SPEC section 1)."""
+"""Errors that reach the user, each with its exit code (docs/reference.md, Exit codes)."""
 
 from __future__ import annotations
 

@@ -23,7 +23,7 @@ from simkit.netlist.build import build_circuit, keying_drive
 from simkit.netlist.circuit import Circuit
 from simkit.units import spice
 
-#: SPEC section 3 figures, in the order tables print them, with unit and meaning.
+#: The figures of docs/reference.md (Figures), in the order tables print them, with unit and meaning.
 FIGURES: dict[str, tuple[str, str]] = {
     "vout_dc_v": ("V", "mean output voltage across the load"),
     "ripple_pp_v": ("V", "peak-to-peak output ripple"),

@@ -14,16 +14,16 @@ Node 0 is ground and "a->b" is a diode with anode ``a`` and cathode ``b``. The n
 names are those the nodal formulation (below) uses.
 
 ``half-wave``
-    Winding 0->ac1; D1 ac1->rect; C rect-0; RL rect-0.
+    Winding 0->ac1; D1 ac1->rect; C from rect to 0; RL from rect to 0.
 ``centre-tap``
     Two half-windings from node 0 to ac1 and ac2, EMFs ``+Vs`` and ``-Vs``, each with
-    its own ``Rs``; D1 ac1->rect, D2 ac2->rect; C rect-0; RL rect-0.
+    its own ``Rs``; D1 ac1->rect, D2 ac2->rect; C from rect to 0; RL from rect to 0.
 ``bridge``
     One floating winding (EMF ``Vs`` from ac2 to ac1, series ``Rs``); D1 ac1->rect,
-    D2 ac2->rect, D3 0->ac1, D4 0->ac2; C rect-0; RL rect-0.
+    D2 ac2->rect, D3 0->ac1, D4 0->ac2; C from rect to 0; RL from rect to 0.
 ``doubler``
     Full-wave doubler: winding from mid to ac1; D1 ac1->rect, D2 0->ac1; C1 rect-mid,
-    C2 mid-0; RL rect-0. The output is about ``2*Vpk``.
+    C2 mid-0; RL from rect to 0. The output is about ``2*Vpk``.
 ``cascade``
     Half-wave Cockcroft-Walton chain with ``n`` stages: winding from 0 to p0; for
     stage k = 1..n: C(2k-1) from p(k) to p(k-1), D(2k-1) s(k-1)->p(k) (s0 = 0),

@@ -3,9 +3,9 @@
 A seeded generator (repeatable: the same seed gives the same cases, and a failure names its case)
 mutates the example designs shipped in simkit/examples/ as text (lines dropped, doubled, swapped,
 cut; values replaced by hostile ones; junk, deep nesting, bad bytes) and through --set, and feeds
-them to the loader and to the command line.  Whatever comes in, the contract of SPEC section 1
-holds: exit 0, 1, 2 or 3; an error is one line starting "simkit: error:", never a traceback; and
-nothing is written outside the output folder.
+them to the loader and to the command line.  Whatever comes in, the exit-code contract
+(docs/reference.md, Exit codes) holds: exit 0, 1, 2 or 3; an error is one line starting
+"simkit: error:", never a traceback; and nothing is written outside the output folder.
 
 Most cases stop before the simulator (the loader alone, or the command line with the simulation
 replaced by a stand-in); a few dozen valid mutations run end to end through ngspice.

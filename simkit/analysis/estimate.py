@@ -1,10 +1,10 @@
 """Estimate the steady state of a design from closed forms, as a starting point for ngspice.
 
 The estimate only decides how soon the simulation settles, never a reported figure.  It
-uses the infinite-capacitance solution with series resistance (REFERENCES.md formula 19:
+uses the infinite-capacitance solution with series resistance (docs/sources.md rect-4:
 tan(phi) - phi = pi*Rs/(n*R_L), V = Vpk*cos(phi)), the finite-C ripple correction
-I/(k*f*C), the choke-input value 2*Vpk/pi (formula 9) and, for the cascade, the
-quasi-static crest drop (formula 7a).
+I/(k*f*C) (rect-2), the choke-input value 2*Vpk/pi (filt-1) and, for the cascade, the
+quasi-static crest drop (mult-4).
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from simkit.parts.tubes import drop_at
 
 
 def conduction_half_angle(rs_over_nrl: float) -> float:
-    """Solve tan(phi) - phi = pi * Rs / (n * R_L) for phi in (0, pi/2), rad (formula 19)."""
+    """Solve tan(phi) - phi = pi * Rs / (n * R_L) for phi in (0, pi/2), rad (docs/sources.md rect-4)."""
     k = math.pi * max(rs_over_nrl, 0.0)
     if k <= 1e-12:
         return 0.0

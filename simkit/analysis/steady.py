@@ -15,8 +15,10 @@ does.
 
 The measuring step is chosen for accuracy: the fewest steps per period that put
 ``POINTS_PER_PULSE`` time points into the shortest diode conduction pulse (measured on the
-settled waveform), between ``MIN_STEPS`` and ``MAX_STEPS``.  tests/test_steps.py holds this rule
-against runs at a step ten times finer on every topology.
+settled waveform), between ``MIN_STEPS`` and ``MAX_STEPS``, then the halving test: one more
+period at half the step must change no figure it affects by more than ``STEP_TOL``.
+tests/test_steady_engine.py holds the choice against runs at one period / 4000 (at least four
+times finer) on every topology.
 
 Before it is reported, the final span (``MEASURE_PERIODS`` periods from the fixed point) is
 verified three ways (:class:`Check`): every state variable repeats from period to period; the

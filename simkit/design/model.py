@@ -41,7 +41,7 @@ class DiodeModel:
     n: float  # emission coefficient (silicon)
     rs: float  # ohm, series resistance (silicon)
     bv: float | None = None  # V, reverse breakdown (None: no breakdown modelled)
-    tt: float = 0.0  # s, transit time (0: no stored charge, see ENGINE-NOTES trap 1)
+    tt: float = 0.0  # s, transit time (0: no stored charge: docs/engine-notes.md#tt-cjo)
     cjo: float = 0.0  # F, zero-bias junction capacitance (0: no ringing)
     ratings: DiodeRatings = field(default_factory=DiodeRatings)
     source: str = ""  # where the ratings come from

@@ -245,7 +245,7 @@ class Engine:
         return out
 
     def _cleanup(self) -> None:
-        # Order matters: breakpoints survive remcirc unless deleted first (ENGINE-NOTES trap 6).
+        # Order matters: breakpoints survive remcirc unless deleted first (docs/engine-notes.md#cleanup).
         with _sigint_held():
             self._command("delete all")
             self._command("destroy all")

@@ -1,9 +1,9 @@
 """Turn a design into a :class:`Circuit`: one generator per stage (source, rectifier, filter, load).
 
-Robust defaults (ENGINE-NOTES): every floating winding terminal is tied to ground through
-10 Meg; a critically damped RC snubber sits wherever inductance feeds the diodes (leakage
-inductance, or a choke-input filter); diodes carry TT = 0 and CJO = 0 unless the design
-says otherwise.
+Robust defaults (docs/engine-notes.md): every floating winding terminal is tied to ground through
+10 Meg (#ties); an RC snubber (10 nF, R = sqrt(L/C): damping ratio 1/2 with the inductance it
+damps) sits wherever inductance feeds the diodes (leakage inductance, or a choke-input filter;
+#snubbers); diodes carry TT = 0 and CJO = 0 unless the design says otherwise (#tt-cjo).
 
 Node names: ``w1p`` EMF terminal, ``ac1``/``ac2`` winding terminals at the diodes,
 ``rect`` rectifier output, ``f1``, ``f2``... filter nodes, ``out`` the output.
@@ -40,9 +40,9 @@ from simkit.netlist.circuit import (
 )
 from simkit.units import spice
 
-#: Resistance tying floating winding terminals to ground, ohm (ENGINE-NOTES trap 2).
+#: Resistance tying floating winding terminals to ground, ohm (docs/engine-notes.md#ties).
 FLOAT_TIE = 10e6
-#: Snubber capacitance where inductance feeds the diodes, F; R is chosen for critical damping.
+#: Snubber capacitance where inductance feeds the diodes, F; R = sqrt(L/C) (damping ratio 1/2).
 SNUB_C = 10e-9
 #: Knee of the current-load model: below a few volts the sink fades out (tanh), V.
 CURRENT_KNEE = 5.0
@@ -243,7 +243,7 @@ class _Builder:
         if vac is None:
             self.c.add(Element(f"D{k}", (inner, cathode), DIODE_MODEL, comment="anode cathode ->|-"))
         else:
-            # A vacuum plate: Child-Langmuir current, none in reverse (ENGINE-NOTES trap 5: max(v,0),
+            # A vacuum plate: Child-Langmuir current, none in reverse (docs/engine-notes.md#tube-law: max(v,0),
             # never a smoothed exponential).  Emission follows the heater in the start-up run.
             heat = ""
             if self.mode == "start" and vac.warmup_full > 0:

@@ -8,6 +8,12 @@ from simkit.errors import UsageError
 from simkit.parts import diodes, regulators, tubes
 from simkit.units import eng
 
+#: Where the numbers of the library come from, for people: the page and its entries.
+SOURCES_PAGE = "docs/sources.md"
+TUBES_ID = "tube-4"
+GLOW_ID = "reg-1"
+MOSFETS_ID = "reg-5"
+
 
 def listing() -> str:
     lines = ["Silicon rectifier diodes (use as rectifier.diode = \"NAME\"):",
@@ -38,7 +44,7 @@ def listing() -> str:
     lines.append('Pass MOSFETs ([regulator] kind = "series", device = "NAME"):')
     for m in regulators.MOSFETS.values():
         lines.append(f"  {m.name:<8} {m.vdss:g} V, {m.id_max:g} A, {m.pd:g} W, threshold {m.vto:g} V")
-    lines.append("Details and sources: simkit parts NAME")
+    lines.append(f"Details and sources: simkit parts NAME (every source: {SOURCES_PAGE} in simkit's repository)")
     return "\n".join(lines) + "\n"
 
 
@@ -52,11 +58,12 @@ def describe(name: str) -> str:
         if g is not None:
             return (f"{g.name}: glow-discharge regulator tube\n  maintaining {g.maintaining:g} V, striking "
                     f"{g.striking:g} V, {g.i_min * 1e3:g}-{g.i_max * 1e3:g} mA, dynamic {g.resistance:.3g} ohm\n"
-                    f"  from: {g.source}\n")
+                    f"  source: {g.source}\n  see: {SOURCES_PAGE}#{GLOW_ID}\n")
         m = regulators.mosfet(name)
         if m is not None:
             return (f"{m.name}: N-channel MOSFET for series pass\n  VDSS {m.vdss:g} V, ID {m.id_max:g} A, "
-                    f"PD {m.pd:g} W (25 C case), model vto {m.vto:g} V, kp {m.kp:g} A/V^2\n  from: {m.source}\n")
+                    f"PD {m.pd:g} W (25 C case), model vto {m.vto:g} V, kp {m.kp:g} A/V^2\n  source: {m.source}\n"
+                    f"  see: {SOURCES_PAGE}#{MOSFETS_ID}\n")
         known = {**{k: v.name for k, v in diodes.DIODES.items()}, **{k: v.name for k, v in tubes.TUBES.items()}}
         near = difflib.get_close_matches(name.upper(), list(known), n=1, cutoff=0.5)
         hint = f"; did you mean {known[near[0]]}?" if near else ""
@@ -72,7 +79,8 @@ def describe(name: str) -> str:
         ("model forward drop at IF(AV)",
          eng(diodes.forward_drop(p, r.ifav), "V") if r.ifav else "-"),
         ("SPICE model", f"IS={p.is_:g} N={p.n:g} RS={p.rs:g} TT=0 CJO=0 (our own fit)"),
-        ("ratings from", p.source),
+        ("source", p.source),
+        ("see", f"{SOURCES_PAGE}#{p.sources_id}"),
     ]
     width = max(len(k) for k, _ in rows)
     out = [f"{p.name}: {p.description}"] + [f"  {k:<{width}}  {v}" for k, v in rows]
@@ -92,7 +100,8 @@ def _describe_tube(t: tubes.TubePart) -> str:
         ("plate law", f"i = {t.perveance:.4g} v^1.5 (fitted to {eng(t.drop_v, 'V')} at {eng(t.drop_i, 'A')})"),
         ("heater", f"{'directly' if t.directly_heated else 'indirectly'} heated: emission from "
                    f"{m.vacuum.warmup_start:g} s, full at {m.vacuum.warmup_full:g} s (common practice)"),
-        ("ratings from", t.source),
+        ("source", t.source),
+        ("see", f"{SOURCES_PAGE}#{TUBES_ID}"),
     ]
     width = max(len(k) for k, _ in rows)
     out = [f"{t.name}: {t.description}"] + [f"  {k:<{width}}  {v}" for k, v in rows]

@@ -1,13 +1,15 @@
 """Built-in silicon rectifier diodes: SPICE junction parameters and datasheet ratings.
 
-Ratings carry the tag of REFERENCES.md: [V] read in the datasheet, [S] secondary source,
-[M] from memory.  The junction parameters are our own fit, not a vendor model: IS, N and
-RS are chosen so the forward drop at the rated current sits between a typical value and
-the datasheet maximum (V_F column), which is what sets the rectified voltage.  TT and CJO
-are left at zero: stored charge and junction capacitance make a rectifier deck ring with
-the winding's leakage inductance and slow ngspice down many times over (ENGINE-NOTES,
-traps 1 and 4) while changing no figure of this tool.  No breakdown voltage is modelled,
-so the reverse voltage a design puts on a diode is reported as it is, not clipped.
+Each part's ``source`` names the maker's sheet its ratings come from and says how far to
+trust them: "read" in the sheet, or "from memory" with the sheet to check (docs/sources.md,
+entries diode-1 to diode-6).  The junction parameters are our own fit, not a vendor model:
+IS, N and RS are chosen so the forward drop at the rated current sits between a typical
+value and the datasheet maximum (V_F column), which is what sets the rectified voltage.  TT
+and CJO are left at zero: stored charge and junction capacitance make a rectifier deck ring
+with the winding's leakage inductance and slow ngspice down many times over
+(docs/engine-notes.md, "TT = 0 and CJO = 0") while changing no figure of this tool.  No
+breakdown voltage is modelled, so the reverse voltage a design puts on a diode is reported
+as it is, not clipped.
 """
 
 from __future__ import annotations
@@ -17,14 +19,12 @@ from dataclasses import dataclass
 
 from simkit.design.model import DiodeModel, DiodeRatings
 
-_VISHAY_88503 = (
-    "Vishay General Semiconductor, 1N4001 thru 1N4007, Doc. 88503 [V]"
-)
-_VISHAY_88516 = "Vishay, 1N5400 thru 1N5408, Doc. 88516 [V]"
-_VISHAY_88508 = "Vishay, 1N4933 thru 1N4937, Doc. 88508 [V]"
+_VISHAY_88503 = "Vishay General Semiconductor, 1N4001 thru 1N4007, doc. 88503 (read)"
+_VISHAY_88516 = "Vishay General Semiconductor, 1N5400 thru 1N5408, doc. 88516 (read)"
+_VISHAY_88508 = "Vishay General Semiconductor, 1N4933 thru 1N4937, doc. 88508 (read)"
 _UF4007 = (
-    "UF4007 sheet not read; ratings as the same-die families Vishay US1A-US1M and "
-    "SUF4001-SUF4007 [V], UF4007 itself [M]"
+    "from memory, as given by Vishay General Semiconductor, UF4001 thru UF4007 (not read: check it); "
+    "the same ratings read in Vishay's US1A thru US1M sheet"
 )
 
 
@@ -37,6 +37,7 @@ class DiodePart:
     ratings: DiodeRatings
     source: str
     description: str
+    sources_id: str = "diode-1"  # entry of docs/sources.md that explains the ratings
 
     def model(self) -> DiodeModel:
         return DiodeModel(
@@ -81,6 +82,7 @@ _PARTS: tuple[DiodePart, ...] = (
         ),
         source=_UF4007,
         description="1000 V 1 A ultrafast rectifier (75 ns)",
+        sources_id="diode-4",
     ),
     DiodePart(
         name="1N5408",
@@ -89,8 +91,9 @@ _PARTS: tuple[DiodePart, ...] = (
         rs=0.02,
         ratings=DiodeRatings(vrrm=1000.0, ifav=3.0, ifsm=200.0, vf=1.2, vf_current=3.0),
         source=_VISHAY_88516
-        + "; Diodes Inc. glass-passivated 1N5408G rates the surge at only 125 A [V]",
+        + "; Diodes Incorporated's glass-passivated 1N5408G rates the surge at only 125 A (read)",
         description="1000 V 3 A general-purpose rectifier",
+        sources_id="diode-2",
     ),
     DiodePart(
         name="1N4937",
@@ -102,6 +105,7 @@ _PARTS: tuple[DiodePart, ...] = (
         ),
         source=_VISHAY_88508,
         description="600 V 1 A fast-recovery rectifier (200 ns)",
+        sources_id="diode-3",
     ),
 )
 

@@ -2,17 +2,20 @@
 
 Each plate conducts i = P * v^1.5 for a positive plate-to-cathode voltage v, and nothing in
 reverse.  The perveance P is fitted to one datasheet drop point, "tube drop V_d at plate
-current I_b per plate": P = I_b / V_d^1.5 (REFERENCES.md section 3, "Fitting a
-Child-Langmuir perveance per plate").  Datasheet drops are quoted at a DC plate current
-while the plate really carries short pulses, so the fit is a first approximation; the
-winding resistance stays separate from the tube, as REFERENCES.md advises.
+current I_b per plate": P = I_b / V_d^1.5 (docs/sources.md, tube-1 and tube-2).  Datasheet
+drops are quoted at a DC plate current while the plate really carries short pulses, so the
+fit is a first approximation; the winding resistance stays a separate series resistance, so
+it does not mix with the tube's law.
 
-Tags as in REFERENCES.md: [V] read in the datasheet, [S] secondary source, [M] from memory
-(unverified; check the primary sheet: RCA RC-30, GE/Sylvania sheets, Mullard/Philips books).
+Each part's ``source`` says how far to trust its ratings: "read" in the maker's sheet, or
+"from memory" with the sheet to check (RCA Receiving Tube Manual RC-30, the GE and Sylvania
+sheets, the Mullard and Philips data books).  Most are from memory: docs/sources.md, tube-4,
+tabulates them.
 
 Heater warm-up: the cathode starts to emit at ``warmup_start`` and reaches full emission at
 ``warmup_full`` seconds after switch-on; between, emission grows linearly.  Directly heated
-filaments take about 2-5 s, indirectly heated cathodes about 10-20 s (common practice).
+filaments take about 2-5 s, indirectly heated cathodes about 10-20 s (common practice,
+docs/sources.md tube-3).
 """
 
 from __future__ import annotations
@@ -52,63 +55,69 @@ _PARTS: tuple[TubePart, ...] = (
         "5U4GB", 47.0, 0.275, True,
         TubeRatings(piv=1550.0, peak_current=1.0, dc_current=0.275, max_input_capacitance=40e-6,
                     min_plate_resistance=67.0),
-        "peak plate current 1.0 A and 40 uF: T. Mayer, 'Tube of the month: 5U4', monoandstereo.com "
-        "(2021), citing the GE sheet [S]; PIV 1550 V, 275 mA, 67 ohm at 450 Vrms and the drop "
-        "44-50 V at 275 mA per plate (47 V used) [M]",
+        "from memory, as given by the RCA 5U4GB sheet (RCA Receiving Tube Manual RC-30) and the GE 5U4GB "
+        "sheet (not read: check them): PIV 1550 V, 1.0 A peak, 275 mA, 40 uF, 67 ohm per plate at "
+        "450 Vrms; drop 44-50 V at 275 mA per plate (47 V used)",
         "full-wave, directly heated 5 V 3 A; 275 mA",
     ),
     TubePart(
         "5Y3GT", 60.0, 0.125, True,
         TubeRatings(piv=1400.0, peak_current=0.44, dc_current=0.125, max_input_capacitance=20e-6,
                     min_plate_resistance=50.0),
-        "125 mA and 20 uF: tubeofile.com aggregate of the RCA 5Y3GT sheet [S]; drop about 60 V at "
-        "125 mA read from curves [S]; PIV 1400 V, 440 mA peak, 50 ohm at 350 Vrms [M]",
+        "from memory, as given by the RCA 5Y3GT sheet (RCA Receiving Tube Manual RC-30; not read: check "
+        "it): PIV 1400 V, 440 mA peak, 125 mA, 20 uF, 50 ohm per plate at 350 Vrms; drop about 60 V at "
+        "125 mA per plate, read off the sheet's curves",
         "full-wave, directly heated 5 V 2 A; 125 mA",
     ),
     TubePart(
         "5AR4", 17.0, 0.25, False,
         TubeRatings(piv=1500.0, peak_current=0.75, dc_current=0.25, max_input_capacitance=60e-6,
                     min_plate_resistance=125.0),
-        "60 uF: tubeofile GZ37 note comparing with the GZ34 sheet [S]; PIV 1500-1700 V (1500 used), "
-        "750 mA peak, 250 mA, 125 ohm per plate and the drop 17 V at 250 mA [M]",
+        "from memory, as given by the Mullard GZ34 and RCA 5AR4 sheets (not read: check them): PIV "
+        "1500-1700 V by maker (1500 used), 750 mA peak, 250 mA, 60 uF, 125 ohm per plate; drop 17 V at "
+        "250 mA per plate",
         "full-wave (GZ34), indirectly heated; 250 mA",
     ),
     TubePart(
         "6X4", 22.0, 0.07, False,
         TubeRatings(piv=1250.0, peak_current=0.245, dc_current=0.07, max_input_capacitance=10e-6),
-        "PIV 1250 V and 245 mA steady-state peak (1 A for 0.2 s): 6X4 design-maximum data sheet [V]; "
-        "70 mA, 10 uF and the drop 22 V at 70 mA per plate [M]",
+        "PIV 1250 V and 245 mA steady-state peak (1 A for at most 0.2 s): read in a 6X4 sheet with "
+        "design-maximum ratings; 70 mA, 10 uF and the drop 22 V at 70 mA per plate from memory, as given "
+        "by the RCA 6X4 sheet (RCA Receiving Tube Manual RC-30)",
         "full-wave (EZ90), indirectly heated 6.3 V 0.6 A; 70 mA",
     ),
     TubePart(
         "EZ80", 20.0, 0.09, False,
         TubeRatings(piv=1000.0, peak_current=0.27, dc_current=0.09, max_input_capacitance=50e-6,
                     min_plate_resistance=300.0),
-        "90 mA and 50 uF: elreamanding (low quality) [S]; 300 ohm per anode at 2 x 350 V: the EZ40 "
-        "sibling from the Philips sheet [S]; PIV 1000 V, 270 mA peak and the drop 20 V at 90 mA [M]",
+        "from memory, as given by the Mullard EZ80 sheet (not read: check it): PIV 1000 V, 270 mA peak, "
+        "90 mA, 50 uF; 300 ohm per anode at 2 x 350 V as the Philips sheet of the sibling EZ40 gives; "
+        "drop 20 V at 90 mA per plate",
         "full-wave (6V4), indirectly heated; 90 mA",
     ),
     TubePart(
         "EZ81", 25.0, 0.15, False,
         TubeRatings(piv=1300.0, peak_current=0.45, dc_current=0.15, max_input_capacitance=50e-6,
                     min_plate_resistance=240.0),
-        "150 mA: elreamanding [S]; PIV 1300 V, 450 mA peak, 50 uF, 240 ohm per anode at 2 x 350 V [M]; "
-        "the sheet gives curves only: drop 25 V at 150 mA per plate [M]",
+        "from memory, as given by the Mullard EZ81 sheet (not read: check it): PIV 1300 V, 450 mA peak, "
+        "150 mA, 50 uF, 240 ohm per anode at 2 x 350 V; the sheet gives the drop as curves only: "
+        "25 V at 150 mA per plate",
         "full-wave (6CA4), indirectly heated; 150 mA",
     ),
     TubePart(
         "5V4G", 25.0, 0.175, False,
         TubeRatings(piv=1400.0, peak_current=0.525, dc_current=0.175, max_input_capacitance=10e-6,
                     min_plate_resistance=100.0),
-        "all values [M] (nothing found): PIV 1400 V, 525 mA peak, 175 mA, 10-20 uF (10 used), "
-        "100 ohm at 375 Vrms, drop 25 V at 175 mA per plate",
+        "from memory, as given by the RCA 5V4GA sheet (RCA Receiving Tube Manual RC-30; not read: check "
+        "it): PIV 1400 V, 525 mA peak, 175 mA, 10-20 uF (10 used), 100 ohm per plate at 375 Vrms; drop "
+        "25 V at 175 mA per plate",
         "full-wave, indirectly heated; 175 mA",
     ),
     TubePart(
         "5T4", 45.0, 0.225, True,
         TubeRatings(dc_current=0.225, max_input_capacitance=40e-6, min_plate_resistance=150.0),
-        "225 mA, 40 uF, 150 ohm per plate at 450 Vrms and the drop 45 V at 225 mA per plate: "
-        "tubeofile.com from the 5T4 sheet [S]; PIV and peak current not found",
+        "from memory, as given by the RCA 5T4 sheet (not read: check it): 225 mA, 40 uF, 150 ohm per "
+        "plate at 450 Vrms, drop 45 V at 225 mA per plate; PIV and peak current not known",
         "full-wave, directly heated; 225 mA",
     ),
 )

@@ -1,7 +1,7 @@
 """Rows of a sweep or spread as result files: ``<kind>.csv`` and ``<kind>.json``, rebuilt from the journal.
 
 Columns, in order: ``point``; the varied (or drawn) values, named by their PATH, in SI units;
-every figure, named by its key (SPEC section 3 order, then any further keys); with ``--check``, the
+every figure, named by its key (in the order of the figures table, then any further keys); with ``--check``, the
 point's overall verdict ``check`` and one ``check:PART RULE`` column per rule (pass, marginal,
 fail); ``warnings``; ``error``.
 A row whose point failed has empty figure cells and the reason in ``error``.
@@ -23,7 +23,7 @@ VERDICT_PREFIX = "check:"
 
 
 def figure_columns(entries: Iterable[Mapping[str, Any]]) -> list[str]:
-    """Figure keys of the rows: SPEC order first, then any further keys in name order."""
+    """Figure keys of the rows: the figures table's order first, then any further keys in name order."""
     from simkit.pipeline import FIGURES
 
     seen: set[str] = set()
