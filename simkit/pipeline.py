@@ -16,6 +16,7 @@ from simkit.analysis.runs import Run, end_nodes, end_state, transient
 from simkit.analysis.startup import SURGE_FIRST_STEP, start_limit, switch_on
 from simkit.analysis.steady import MEASURE_PERIODS, Progress, Solution, SteadyState, steady_state
 from simkit.design.loader import design_to_inputs
+from simkit.design.loads import lighten
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine, Waveforms, get_engine
 from simkit.errors import DesignError
@@ -238,8 +239,6 @@ def _steady_output(eng: Engine, design: Design, vscale: float) -> tuple[float, f
 
 def _regulation(eng: Engine, design: Design, vscale: float, result: RunResult) -> None:
     """Load and line regulation from extra steady-state runs (light load; mains +- tolerance or 10 %)."""
-    from simkit.checks.corners import lighten
-
     m = result.metrics
     light_loads = tuple(lighten(ld) for ld in design.loads)
     if light_loads == design.loads:  # fixed loads: from no load to the design's load

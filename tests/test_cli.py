@@ -43,8 +43,8 @@ def test_set_overrides_a_value(tmp_path: Path, capsys: pytest.CaptureFixture[str
     code, out, _ = call(["run", str(p), "--json", "--set", "load.r=2.5k", "--set", "filter.0.c=220u"], capsys)
     assert code == 0
     doc = json.loads(out)
-    assert doc["inputs"]["loads"][0]["r"] == 2500.0
-    assert doc["inputs"]["filters"][0]["value"] == pytest.approx(220e-6)
+    assert doc["inputs"]["load"][0]["r"] == 2500.0  # inputs use the design file's keys (--set paths)
+    assert doc["inputs"]["filter"][0]["c"] == pytest.approx(220e-6)
     # The run used the new load: Ohm's law for the means, I = V / 2.5 k (measured within 4e-13).
     assert doc["metrics"]["iout_dc_a"] == pytest.approx(doc["metrics"]["vout_dc_v"] / 2500.0, rel=1e-9)
 

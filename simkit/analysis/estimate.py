@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 
-from simkit.design.model import Design, KeyState, Load
+from simkit.design.model import CurrentLoad, Design, KeyState, Load, ResistorLoad, StepsLoad, TubeLoad
 from simkit.netlist.circuit import Circuit
 from simkit.parts.diodes import forward_drop
 from simkit.parts.tubes import drop_at
@@ -41,23 +41,20 @@ def _series_resistance(design: Design) -> float:
 
 def load_current(load: Load, v: float, mode: str = "steady") -> float:
     """DC current a load draws at voltage v in its final steady state, A."""
-    if load.kind == "resistor":
-        return v / (load.r or math.inf)
-    if load.kind == "current":
-        return load.i or 0.0
-    if load.kind == "tube":
+    if isinstance(load, ResistorLoad):
+        return v / load.r
+    if isinstance(load, CurrentLoad):
+        return load.i
+    if isinstance(load, TubeLoad):
         return load.perveance * max(v, 0.0) ** 1.5
-    if load.kind == "steps":
+    if isinstance(load, StepsLoad):
         return load.steps[-1][1]
-    assert load.down is not None and load.up is not None
 
     def st(k: KeyState) -> float:
         return v / k.r if k.r is not None else (k.i or 0.0)
 
     if mode == "mean":
-        from simkit.netlist.build import key_duty
-
-        d = key_duty(load)
+        d = load.duty_share()
         return d * st(load.down) + (1 - d) * st(load.up)
     return st(load.down)
 

@@ -21,7 +21,8 @@ from dataclasses import dataclass, replace
 
 from simkit.analysis.discharge import Discharge, discharge
 from simkit.analysis.steady import end_state
-from simkit.design.model import Design, KeyState, Load
+from simkit.design.loads import heavy, lighten
+from simkit.design.model import Design
 from simkit.engine.ngspice import Engine, get_engine
 from simkit.pipeline import RunResult, simulate
 
@@ -31,30 +32,6 @@ class Corners:
     results: dict[str, RunResult]  # by corner name
     off: Discharge
     mains_tolerance: float | None
-
-
-def _fixed(ld: Load, state: KeyState) -> Load:
-    if state.r is not None:
-        return replace(ld, kind="resistor", r=state.r, i=None, down=None, up=None, keying=None)
-    return replace(ld, kind="current", i=state.i or 0.0, r=None, down=None, up=None, keying=None)
-
-
-def lighten(ld: Load) -> Load:
-    if ld.kind == "keyed":
-        assert ld.up is not None
-        return _fixed(ld, ld.up)
-    if ld.kind == "steps":
-        return replace(ld, kind="current", i=min(i for _, i in ld.steps) or 1e-9, steps=())
-    return ld
-
-
-def heavy(ld: Load) -> Load:
-    if ld.kind == "keyed":
-        assert ld.down is not None
-        return _fixed(ld, ld.down)
-    if ld.kind == "steps":
-        return replace(ld, kind="current", i=max(i for _, i in ld.steps), steps=())
-    return ld
 
 
 def corner_names(tol: float | None) -> dict[str, str]:

@@ -1,381 +1,365 @@
-"""The design: frozen dataclasses of SI floats, built and validated by :mod:`simkit.design.loader`.
+"""The design: frozen dataclasses of SI floats, each file key declared once on its field.
 
-Nothing here parses text; everything here is already checked.  Sweeps derive new designs
-with :func:`dataclasses.replace` or by re-loading an overridden dictionary.
+Sections of a design file and the classes that hold them: ``[source]`` (:mod:`.sources`),
+``[rectifier]``, ``[[filter]]``, ``[load]`` (:mod:`.loads`), ``[bleeder]``, ``[battery]``
+(:mod:`.sources`), ``[regulator]``, ``[simulation]``, ``[spread]``, ``[checks]``; the whole
+:class:`Design`.  Nothing here parses text and nothing reads the part library: the reader
+(:mod:`simkit.design.reader`) does, from the keys declared here.  Sweeps derive new designs
+with :func:`dataclasses.replace` or by reading an overridden dictionary again.
 """
 
 from __future__ import annotations
 
-import itertools
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Literal
+from typing import Any, ClassVar, Literal
+
+from simkit.design.devices import (
+    INLINE_DIODES,
+    DiodeModel,
+    DiodeRatings,
+    GlowSpec,
+    PartRating,
+    PassDevice,
+    TubeRatings,
+    VacuumDiode,
+    Zener,
+    rating_reader,
+    read_zener,
+)
+from simkit.design.loads import (
+    LOAD_KINDS,
+    CurrentLoad,
+    KeyedLoad,
+    KeyState,
+    Load,
+    LoadBase,
+    ResistorLoad,
+    StepsLoad,
+    TubeLoad,
+)
+from simkit.design.sources import SOURCE_KINDS, Battery, InverterSource, SineSource, Source, TransformerSource
+from simkit.design.vocab import Reader, key
+
+__all__ = [
+    "TOPOLOGIES", "Battery", "Bleeder", "CheckPolicy", "CurrentLoad", "Design", "DiodeModel", "DiodeRatings",
+    "FilterSection", "GlowSpec", "InverterSource", "KeyState", "KeyedLoad", "Load", "LoadBase", "PartRating",
+    "PassDevice", "Rectifier", "Regulator", "ResistorLoad", "SeriesRegulator", "ShuntRegulator",
+    "SimulationOptions", "SineSource", "Source", "SpreadOptions", "StepsLoad", "TransformerSource", "TubeLoad",
+    "TubeRatings", "VacuumDiode", "Zener",
+]
 
 Topology = Literal["half-wave", "centre-tap", "bridge", "doubler", "cascade"]
 TOPOLOGIES: tuple[str, ...] = ("half-wave", "centre-tap", "bridge", "doubler", "cascade")
-FilterKind = Literal["c", "l", "r"]
-LoadKind = Literal["resistor", "current", "tube", "keyed", "steps"]
-SourceKind = Literal["sine", "transformer", "inverter"]
-Waveform = Literal["sine", "modified-sine", "square"]
-
-
-@dataclass(frozen=True)
-class DiodeRatings:
-    """Datasheet limits of a silicon rectifier diode (all optional)."""
-
-    vrrm: float | None = None  # V, repetitive peak reverse voltage
-    ifav: float | None = None  # A, mean forward current
-    ifsm: float | None = None  # A, surge (8.3 ms half-sine, JEDEC)
-    i2t: float | None = None  # A^2 s
-    trr: float | None = None  # s, reverse recovery time
-    vf: float | None = None  # V, maximum forward drop at the test current
-    vf_current: float | None = None  # A, the test current of vf
-
-
-@dataclass(frozen=True)
-class DiodeModel:
-    """A rectifier diode: SPICE junction parameters plus ratings and where they come from."""
-
-    name: str  # library part name, or "inline"
-    is_: float  # A, saturation current (silicon)
-    n: float  # emission coefficient (silicon)
-    rs: float  # ohm, series resistance (silicon)
-    bv: float | None = None  # V, reverse breakdown (None: no breakdown modelled)
-    tt: float = 0.0  # s, transit time (0: no stored charge: docs/engine-notes.md#tt-cjo)
-    cjo: float = 0.0  # F, zero-bias junction capacitance (0: no ringing)
-    ratings: DiodeRatings = field(default_factory=DiodeRatings)
-    source: str = ""  # where the ratings come from
-    vacuum: VacuumDiode | None = None  # set for a tube rectifier: then is_/n/rs are unused
-
-    @property
-    def is_vacuum(self) -> bool:
-        return self.vacuum is not None
-
-
-@dataclass(frozen=True)
-class TubeRatings:
-    """Datasheet limits of a vacuum rectifier, per plate unless said otherwise."""
-
-    piv: float | None = None  # V, peak inverse plate voltage
-    peak_current: float | None = None  # A, peak plate current per plate
-    dc_current: float | None = None  # A, maximum DC output current (capacitor input)
-    max_input_capacitance: float | None = None  # F
-    min_plate_resistance: float | None = None  # ohm, minimum supply impedance per plate
-
-
-@dataclass(frozen=True)
-class VacuumDiode:
-    """One plate of a vacuum rectifier: Child-Langmuir law i = P v^1.5 (v >= 0), no reverse current."""
-
-    perveance: float  # A/V^1.5 per plate
-    warmup_start: float = 0.0  # s after switch-on when the cathode starts to emit
-    warmup_full: float = 0.0  # s after switch-on when emission is complete
-    directly_heated: bool = False
-    ratings: TubeRatings = field(default_factory=TubeRatings)
-
-
-@dataclass(frozen=True)
-class Transformer:
-    """Nameplate of a mains transformer, and what simkit derived from it."""
-
-    primary_vrms: float  # V
-    secondary_vrms: float  # V, whole secondary at rated current
-    rated_current: float  # A (RMS)
-    centre_tap: bool
-    regulation: float | None  # fraction, no-load rise over full-load voltage
-    primary_resistance: float | None  # ohm
-    secondary_resistance: float | None  # ohm
-    turns_ratio: float  # secondary/primary, from the open-circuit voltage
-    open_circuit_vrms: float  # V, whole secondary
-    series_resistance: float  # ohm, whole secondary with the primary referred to it
-
-    @property
-    def rated_va(self) -> float:
-        return self.secondary_vrms * self.rated_current
-
-
-@dataclass(frozen=True)
-class Inverter:
-    """A battery-fed inverter: waveform, output resistance and losses."""
-
-    waveform: Waveform
-    peak: float  # V, the waveform's peak (open circuit, nominal battery)
-    duty: float  # fraction of each half period at +-peak (modified-sine; 1 for square)
-    rated_power: float  # W
-    efficiency: float | None  # at rated power
-    idle_power: float  # W
-    efficiency_table: tuple[tuple[float, float], ...]  # (fraction of rated power, efficiency)
-    regulated: bool
-    response_time: float  # s, time constant of its input (DC bus) smoothing
-    edge_time: float  # s, rise/fall of the square and modified-sine edges
-
-    def input_power(self, p_out: float) -> float:
-        """Battery power for an output power, W (the loss model of the design file)."""
-        p = max(p_out, 0.0)
-        if self.efficiency_table:
-            frac = p / self.rated_power
-            pts = self.efficiency_table
-            if frac <= pts[0][0]:
-                eff = pts[0][1]
-            elif frac >= pts[-1][0]:
-                eff = pts[-1][1]
-            else:
-                eff = pts[-1][1]
-                for (x0, y0), (x1, y1) in itertools.pairwise(pts):
-                    if x0 <= frac <= x1:
-                        eff = y0 + (y1 - y0) * (frac - x0) / (x1 - x0)
-                        break
-            return max(self.idle_power, p / eff)
-        k = self.loss_k
-        return self.idle_power + p + k * p * p
-
-    @property
-    def loss_k(self) -> float:
-        """Coefficient of the loss that grows with the square of the output, 1/W."""
-        if self.efficiency is None:
-            return 0.0
-        pr = self.rated_power
-        return (pr / self.efficiency - pr - self.idle_power) / (pr * pr)
-
-
-@dataclass(frozen=True)
-class Battery:
-    voltage: float  # V, open-circuit
-    internal_resistance: float  # ohm
-    capacity: float  # Ah
-    usable_fraction: float = 1.0
-
-
-@dataclass(frozen=True)
-class Source:
-    """The winding that feeds the rectifier: an EMF with series resistance and inductance.
-
-    For every kind, ``vrms``, ``resistance`` and ``inductance`` are the equivalent per winding
-    (each half for centre-tap) that the netlist uses; ``transformer`` and ``inverter`` keep
-    what the design file said.
-    """
-
-    kind: SourceKind
-    vrms: float  # V, open-circuit RMS (each half for centre-tap)
-    frequency: float  # Hz
-    resistance: float  # ohm, series (each half for centre-tap)
-    inductance: float = 0.0  # H, series leakage (each half for centre-tap)
-    mains_tolerance: float | None = None  # fraction, +- supply range
-    transformer: Transformer | None = None
-    inverter: Inverter | None = None
-    rated_current: float | None = None  # A RMS per winding (half for centre-tap): what it may carry
-
-    @property
-    def vpeak(self) -> float:
-        """Open-circuit peak voltage, V."""
-        return math.sqrt(2.0) * self.vrms
-
-    @property
-    def period(self) -> float:
-        """Source period, s."""
-        return 1.0 / self.frequency
-
-
-@dataclass(frozen=True)
-class PartRating:
-    """Ratings a design gives for one of its own parts (all optional)."""
-
-    v: float | None = None  # V: capacitor rated voltage
-    ripple: float | None = None  # A RMS: capacitor ripple-current rating
-    ripple_frequency: float | None = None  # Hz at which the ripple rating is stated
-    i: float | None = None  # A: choke rated DC current
-    w: float | None = None  # W: resistor power rating
-    source: str = "design file"
+#: Capacitors below this are refused, F: smaller than the wiring's own capacitance.
+MIN_CAPACITANCE = 10e-12
+_STAGED = ("doubler", "cascade")
 
 
 @dataclass(frozen=True)
 class Rectifier:
-    topology: Topology
-    diode: DiodeModel
-    stages: int = 1  # cascade only
-    capacitance: float | None = None  # F, doubler and cascade stage capacitors
-    capacitance_tolerance: float | None = None  # fraction, for spread
-    capacitor_rating: PartRating | None = None  # of each stage capacitor
-    capacitor_esr: float = 0.0  # ohm, of each stage capacitor
-    balancing: float | None = None  # ohm across each stage capacitor
-    balancing_rating: PartRating | None = None
+    """``[rectifier]``: the arrangement and its diodes (and a multiplier's stage capacitors)."""
+
+    topology: str = key("topology", "choice", '"half-wave", "centre-tap", "bridge", "doubler" or "cascade"',
+                        required=True, choices=TOPOLOGIES)
+    diode: DiodeModel = key("diode", "diode", "a library part (see `simkit parts`) or an inline model "
+                            '{ is = "5n", n = 1.8, rs = "40m" }', shown='"1N4007"', text_default="1N4007",
+                            of=INLINE_DIODES)
+    stages: int = key("stages", "int", "cascade only: number of stages (n stages give about 2n x Vpeak)", 1,
+                      shown="1", minimum=1, maximum=20)
+    capacitance: float | None = key("capacitance", "F", "doubler and cascade: each stage capacitor", None,
+                                    shown="required there", above=0, minimum=MIN_CAPACITANCE, maximum=10.0)
+    capacitance_tolerance: float | None = key("capacitance_tolerance", "%", "tolerance of capacitance, for "
+                                              "`simkit spread`", None, shown="none")
+    capacitor_esr: float = key("capacitor_esr", "ohm", "doubler and cascade: ESR of each stage capacitor", 0.0,
+                               shown="0", minimum=0, maximum=1e6)
+    capacitor_rating: PartRating | None = key("capacitor_rating", "table", "doubler and cascade: ratings of each "
+                                              'stage capacitor, { v = "450", ripple = "1.2", ripple_frequency = '
+                                              '"100" }', None, reader=rating_reader("c"), of=(PartRating,))
+    balancing: float | None = key("balancing", "ohm", "doubler and cascade: a balancing resistor across each stage "
+                                  "capacitor", None, shown="none", above=0, maximum=1e12)
+    balancing_rating: PartRating | None = key("balancing_rating", "table", 'power rating of each balancing '
+                                              'resistor, { w = "1" }', None, reader=rating_reader("r"), of=(PartRating,))
+
+    @classmethod
+    def refuse(cls, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        topology = rd.choice(t, "topology", path, TOPOLOGIES)
+        if "stages" in t and topology != "cascade":
+            raise rd.fail(f"{path}.stages", f"applies to topology \"cascade\" only, not \"{topology}\"")
+        if topology in _STAGED and "capacitance" not in t:
+            raise rd.fail(f"{path}.capacitance", f'missing key: a {topology} needs its stage capacitance, e.g. "100u"')
+        if topology not in _STAGED:
+            if "capacitance" in t:
+                raise rd.fail(f"{path}.capacitance", f"applies to doubler and cascade only; for a {topology}, put "
+                              'the reservoir in [[filter]] c = "..."')
+            rd.refuse(t, ("capacitance_tolerance", "capacitor_esr", "capacitor_rating", "balancing",
+                          "balancing_rating"), path, "belongs to the stage capacitors of a doubler or cascade")
+        if "balancing_rating" in t and "balancing" not in t:
+            raise rd.fail(f"{path}.balancing_rating", "needs balancing (the resistance across each stage capacitor)")
+
+
+def _filter_rating(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> PartRating:
+    part = next(k for k in ("c", "l", "r") if table is not None and k in table)
+    return rating_reader(part)(rd, raw, path, table)
 
 
 @dataclass(frozen=True)
 class FilterSection:
-    """One filter section, from the rectifier towards the load."""
+    """One ``[[filter]]`` section, from the rectifier towards the load: a shunt c, a series l or a series r."""
 
-    kind: FilterKind
-    value: float  # F for c, H for l, ohm for r
-    esr: float = 0.0  # ohm, c only
-    dcr: float = 0.0  # ohm, l only
-    tolerance: float | None = None  # fraction of value, for spread
-    rating: PartRating | None = None
+    c: float | None = key("c", "F", "shunt capacitor to the return; a first c is the reservoir", None, above=0,
+                          minimum=MIN_CAPACITANCE, maximum=10.0)
+    esr: float = key("esr", "ohm", "equivalent series resistance of c", 0.0, shown="0", minimum=0, maximum=1e6)
+    l: float | None = key("l", "H", "series choke; a first l makes a choke-input filter", None, above=0,  # noqa: E741
+                          maximum=1e4)
+    dcr: float = key("dcr", "ohm", "winding resistance of l", 0.0, shown="0", minimum=0, maximum=1e9)
+    r: float | None = key("r", "ohm", "series resistor", None, above=0, maximum=1e12)
+    tolerance: float | None = key("tolerance", "%", "tolerance of the section's c, l or r value, for "
+                                  "`simkit spread`", None, shown="none")
+    part: str | None = key("part", "str", "a part of the library file: its ratings (and esr or dcr, unless given "
+                           "here)", None)
+    rating: PartRating | None = key("rating", "table", 'ratings, for `simkit check`: c { v = "450", ripple = "1.2", '
+                                    'ripple_frequency = "100" }, l { i = "150m" }, r { w = "2" }', None,
+                                    reader=_filter_rating, of=(PartRating,))
 
-
-@dataclass(frozen=True)
-class KeyState:
-    """What a keyed load draws in one key state: a current or a resistance."""
-
-    i: float | None = None  # A
-    r: float | None = None  # ohm
-
-
-@dataclass(frozen=True)
-class Keying:
-    """When a keyed load is down: a fixed rate and duty, or Morse text at a speed."""
-
-    rate: float | None = None  # Hz
-    duty: float | None = None  # fraction of each cycle key-down
-    morse: str | None = None  # text sent, repeated
-    wpm: float | None = None  # words per minute (PARIS standard)
-    rise: float = 5e-3  # s
-    fall: float = 5e-3  # s
-
-
-@dataclass(frozen=True)
-class Load:
-    kind: LoadKind
-    r: float | None = None  # ohm, resistor
-    i: float | None = None  # A, current
-    tolerance: float | None = None  # fraction, for spread
-    tube_v: float | None = None  # V, tube load operating point
-    tube_i: float | None = None  # A
-    down: KeyState | None = None
-    up: KeyState | None = None
-    keying: Keying | None = None
-    steps: tuple[tuple[float, float], ...] = ()  # (time s, current A) from switch-on
-    warmup: float | None = None  # s: draws nothing until then (heaters warming)
-    at: int | None = None  # filter section the load hangs after; None: the output
-    pushing: float | None = None  # Hz/V of an oscillator fed from this node
-    name: str = "LOAD"
+    @classmethod
+    def refuse(cls, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        kinds = [k for k in ("c", "l", "r") if k in t]
+        if len(kinds) != 1:
+            got = " and ".join(kinds) if kinds else "none"
+            raise rd.fail(path, f"each section needs exactly one of c, l or r; got {got}")
+        if "esr" in t and kinds[0] != "c":
+            raise rd.fail(f"{path}.esr", "esr belongs to a c section")
+        if "dcr" in t and kinds[0] != "l":
+            raise rd.fail(f"{path}.dcr", "dcr belongs to an l section")
+        if "part" in t and "rating" in t:
+            raise rd.fail(f"{path}.part", "give part or rating, not both")
 
     @property
-    def perveance(self) -> float:
-        """Child-Langmuir perveance of a tube load, A/V^1.5, from its operating point."""
-        assert self.tube_v and self.tube_i
-        return self.tube_i / self.tube_v**1.5
+    def kind(self) -> Literal["c", "l", "r"]:
+        return "c" if self.c is not None else "l" if self.l is not None else "r"
+
+    @property
+    def value(self) -> float:
+        """F for c, H for l, ohm for r."""
+        v = self.c if self.c is not None else self.l if self.l is not None else self.r
+        assert v is not None
+        return v
 
 
 @dataclass(frozen=True)
 class Bleeder:
-    r: float  # ohm
-    tolerance: float | None = None  # fraction, for spread
-    rating: PartRating | None = None
+    """``[bleeder]``: a resistor across the output that empties the capacitors after switch-off."""
+
+    r: float = key("r", "ohm", "bleeder resistance across the output", required=True,
+                   need="the bleeder resistance, e.g. r = \"220k\"", above=0, maximum=1e12)
+    tolerance: float | None = key("tolerance", "%", "tolerance of r, for `simkit spread`", None, shown="none")
+    part: str | None = key("part", "str", "a resistor of the library file (its power rating)", None)
+    rating: PartRating | None = key("rating", "table", 'power rating, { w = "2" }, for `simkit check`', None,
+                                    reader=rating_reader("r"), of=(PartRating,))
+
+    @classmethod
+    def refuse(cls, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        if "part" in t and "rating" in t:
+            raise rd.fail(f"{path}.part", "give part or rating, not both")
 
 
 @dataclass(frozen=True)
-class Zener:
-    """A zener diode (or a string of ``count`` equal ones)."""
+class ShuntRegulator:
+    """``kind = "shunt"``: a dropping resistor and a shunt element (a zener string or glow tubes)."""
 
-    voltage: float  # V each
-    count: int = 1
-    resistance: float = 10.0  # ohm, dynamic, each
-    power: float | None = None  # W rating each
+    kind: ClassVar[str] = "shunt"
+    resistance: float = key("resistance", "ohm", "the series dropping resistor", required=True,
+                            need='the dropping resistor, e.g. resistance = "4.7k"', above=0, maximum=1e9)
+    resistor_rating: PartRating | None = key("resistor_rating", "table", 'power rating of the dropping resistor, '
+                                             '{ w = "5" }', None, reader=rating_reader("r"), of=(PartRating,))
+    zener: Zener | None = key("zener", "table", 'the shunt element: { voltage = "75", count = 2, resistance = "20", '
+                              'power = "5" } (each)', None, reader=read_zener, of=(Zener,))
+    tube: GlowSpec | None = key("tube", "glowtube", 'glow-discharge regulator tube from the library ("OA2", '
+                                '"OB2", "OC3", "OD3")', None)
+    count: int = key("count", "int", "glow tubes in series", 1, shown="1", minimum=1, maximum=10)
 
+    @classmethod
+    def refuse(cls, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        rd.need(t, "resistance", path, 'the dropping resistor, e.g. resistance = "4.7k"')
+        if ("zener" in t) == ("tube" in t):
+            raise rd.fail(f"{path}.zener", 'a shunt regulator needs either zener = { voltage = ... } or tube = "OD3"')
+        if "zener" in t:
+            rd.refuse(t, ("count",), path, "count of glow tubes; a zener string says count inside zener = { ... }")
 
-@dataclass(frozen=True)
-class GlowSpec:
-    """Glow-discharge regulator tubes in series (ratings per tube)."""
+    @property
+    def glow(self) -> GlowSpec | None:
+        """The glow tubes: the library's tube, ``count`` of them in series."""
+        if self.tube is None:
+            return None
+        from dataclasses import replace
 
-    name: str
-    count: int
-    maintaining: float  # V
-    striking: float  # V
-    extinction: float  # V
-    i_min: float  # A
-    i_max: float  # A
-    resistance: float  # ohm dynamic
-    source: str
-
-
-@dataclass(frozen=True)
-class PassDevice:
-    name: str
-    vto: float  # V
-    kp: float  # A/V^2
-    vdss: float | None = None  # V
-    id_max: float | None = None  # A
-    pd: float | None = None  # W
-    source: str = ""
+        return replace(self.tube, count=self.count)
 
 
-@dataclass(frozen=True)
-class Regulator:
-    """A shunt or series-pass regulator between the filter and the load."""
+def _zener_string(reference: float) -> Zener:
+    """A reference of zeners of up to 200 V each, 1/20 of each one's voltage as its dynamic resistance."""
+    n = max(1, math.ceil(reference / 200.0))
+    return Zener(voltage=reference / n, count=n, resistance=reference / n / 20.0)
 
-    kind: Literal["shunt", "series"]
-    resistance: float | None = None  # ohm: shunt dropping resistor
-    resistor_rating: PartRating | None = None
-    zener: Zener | None = None  # shunt element, or the series reference
-    glow: GlowSpec | None = None  # shunt element
-    reference: float | None = None  # V, series: the reference voltage
-    reference_current: float = 2e-3  # A, series: set-up current of the reference
-    filter_r: float = 100e3  # ohm, series: reference RC filter
-    filter_c: float = 1e-6  # F
-    gate_resistor: float = 1e3  # ohm, series: gate stopper
-    gate_zener: float = 15.0  # V, series: gate-source protection
-    device: PassDevice | None = None  # series
-    headroom: float = 5.0  # V, series: the least input-output difference that keeps regulating
+
+@dataclass(frozen=True, kw_only=True)
+class SeriesRegulator:
+    """``kind = "series"``: a MOSFET source follower from a filtered zener reference."""
+
+    kind: ClassVar[str] = "series"
+    reference_given: float | None = key("reference", "V", "reference voltage (the output is about this less the "
+                                        "gate-source voltage)", None, above=0, maximum=100e3)
+    zener_given: Zener | None = key("zener", "table", 'the reference as zeners instead: { voltage = "100", '
+                                    'count = 2 }', None, reader=read_zener, of=(Zener,))
+    reference_current: float = key("reference_current", "A", "current the reference resistor sets up in the "
+                                   "reference", 2e-3, shown="2m", above=0, maximum=1.0)
+    filter_r: float = key("filter_r", "ohm", "resistor of the RC filter on the reference (slow start, less noise)",
+                          100e3, shown="100k", above=0, maximum=1e9)
+    filter_c: float = key("filter_c", "F", "capacitor of the reference filter", 1e-6, shown="1u", above=0,
+                          maximum=1.0)
+    gate_resistor: float = key("gate_resistor", "ohm", "gate stopper", 1e3, shown="1k", above=0, maximum=1e7)
+    gate_zener: float = key("gate_zener", "V", "gate-source protection zener", 15.0, shown="15", above=0, maximum=100)
+    device: PassDevice = key("device", "mosfet", 'pass MOSFET from the library ("IRF840", "IRF830", "IRFBG20") or '
+                             'inline { vto = "3.5", kp = "2.5", vdss = "500", id = "8", pd = "125" }',
+                             shown='"IRF840"', text_default="IRF840", of=(PassDevice,))
+    headroom: float = key("headroom", "V", "input-output difference below which it no longer regulates (dropout)",
+                          5.0, shown="5", above=0, maximum=1e3)
+
+    @classmethod
+    def refuse(cls, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        if "reference" not in t and "zener" not in t:
+            raise rd.fail(f"{path}.reference", 'missing key: the reference voltage, e.g. reference = "250"')
+
+    def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        if self.reference_given is not None and self.zener_given is not None:
+            raise rd.fail(f"{path}.reference", "give reference or zener = { ... }, not both")
+
+    @property
+    def zener(self) -> Zener:
+        """The reference zeners: as given, or a string of them for ``reference``."""
+        if self.zener_given is not None:
+            return self.zener_given
+        assert self.reference_given is not None
+        return _zener_string(self.reference_given)
+
+    @property
+    def reference(self) -> float:
+        """The reference voltage, V."""
+        z = self.zener
+        return self.reference_given if self.reference_given is not None else z.voltage * z.count
+
+
+Regulator = ShuntRegulator | SeriesRegulator
+REGULATOR_KINDS: tuple[type, ...] = (ShuntRegulator, SeriesRegulator)
+
+
+def regulator_foreign(name: str, chosen: type, owner: type | None) -> str:
+    other = "series" if chosen is ShuntRegulator else "shunt"
+    return f'belongs to kind "{other}"'
+
+
+def _share(name: str, doc: str, default: float, shown: str) -> Any:
+    return key(name, "%", doc, default, shown=shown, percent_max=1.0 + 1e-12)
 
 
 @dataclass(frozen=True)
 class CheckPolicy:
-    """Derating and safety limits of `simkit check` (defaults: common practice)."""
+    """``[checks]``: derating and safety limits of `simkit check` (defaults: common practice)."""
 
-    diode_voltage: float = 0.8  # share of VRRM / PIV a diode may see
-    capacitor_voltage: float = 0.9  # share of the rated voltage
-    resistor_power: float = 0.5  # share of the power rating (resistors, zeners, the pass device)
-    marginal: float = 0.1  # within this share of a limit: "marginal"
-    safe_voltage: float = 60.0  # V: every capacitor below this ...
-    safe_time: float = 5.0  # s: ... within this time after switch-off (load gone)
+    diode_voltage: float = _share("diode_voltage", "a diode may see this share of its VRRM (a tube, of its PIV)",
+                                  0.8, "80%")
+    capacitor_voltage: float = _share("capacitor_voltage", "a capacitor may see this share of its rated voltage",
+                                      0.9, "90%")
+    resistor_power: float = _share("resistor_power", "a resistor may dissipate this share of its rating", 0.5, "50%")
+    marginal: float = _share("marginal", "a value within this share of its limit is marginal", 0.1, "10%")
+    safe_voltage: float = key("safe_voltage", "V", "after switch-off every capacitor must fall below this ...", 60.0,
+                              shown="60", above=0, maximum=1e5)
+    safe_time: float = key("safe_time", "s", "... within this time (load gone, bleeder only)", 5.0, shown="5",
+                           above=0, maximum=3600)
+
+    def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        for name in ("diode_voltage", "capacitor_voltage", "resistor_power", "marginal"):
+            if getattr(self, name) <= 0:
+                raise rd.fail(f"{path}.{name}", "must be above 0%")
 
 
 @dataclass(frozen=True)
 class SpreadOptions:
-    distribution: Literal["uniform", "normal"] = "uniform"  # normal: tolerance = 3 sigma
+    """``[spread]``: how `simkit spread` draws values within their tolerances."""
+
+    distribution: str = key("distribution", "choice", '"uniform" (anywhere within +- tolerance) or "normal" (the '
+                            "tolerance is 3 standard deviations), for `simkit spread`", "uniform", shown='"uniform"',
+                            choices=("uniform", "normal"))
 
 
 @dataclass(frozen=True)
 class SimulationOptions:
-    switch_on_phase: float = 90.0  # degrees of the source at switch-on
-    steps_per_period: int | None = None  # max time step is period / this; None: chosen by accuracy
-    settle_tolerance: float = 1e-4  # relative change per period that counts as settled
-    max_settle_time: float | None = None  # s; None: 400 periods
-    switch_on_time: float | None = None  # s; None: chosen from the circuit's time constants
-    reltol: float = 1e-5
-    max_points: float = 2e7  # refuse a run whose estimated time points exceed this
+    """``[simulation]``: how the analyses run."""
+
+    switch_on_phase: float = key("switch_on_phase", "deg", "source phase at switch-on for the surge run (90 = "
+                                 "crest)", 90.0, shown="90", minimum=-360, maximum=360)
+    steps_per_period: int | None = key("steps_per_period", "int", "the maximum time step is one period divided by "
+                                       "this; by default simkit chooses it for accuracy (20 points in the shortest "
+                                       "diode conduction pulse, checked by halving the step; 200 to 2000 per "
+                                       "period)", None, shown="automatic", minimum=50, maximum=100000)
+    settle_tolerance: float = key("settle_tolerance", "", "how close to the periodic state counts as settled: the "
+                                  "distance the slow modes would still move each state variable, relative to its "
+                                  "scale", 1e-4, shown="1e-4", above=0, maximum=0.1)
+    max_settle_time: float | None = key("max_settle_time", "s", "give up looking for the steady state after this "
+                                        "much simulated time", None, shown="400 periods", above=0, maximum=3600)
+    switch_on_time: float | None = key("switch_on_time", "s", "length of the switch-on run", None,
+                                       shown="from the circuit's time constants", above=0, maximum=3600)
+    reltol: float = key("reltol", "", "ngspice relative tolerance", 1e-5, shown="1e-5", minimum=1e-8, maximum=1e-2)
+    max_points: float = key("max_points", "", "refuse to simulate when the estimated time points of all analyses "
+                            "exceed this (about a minute of simulation per 2e7 on a typical PC)", 2e7, shown="2e7",
+                            minimum=1e4, maximum=1e10)
+
+    def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        if not math.isfinite(self.switch_on_phase):
+            raise rd.fail(f"{path}.switch_on_phase", "must be a finite angle in degrees")
 
 
 @dataclass(frozen=True)
 class Design:
-    """A whole, validated design."""
+    """A whole, validated design (the top level of a design file)."""
 
-    title: str
-    source: Source
-    rectifier: Rectifier
-    filters: tuple[FilterSection, ...] = ()
-    loads: tuple[Load, ...] = ()
-    bleeder: Bleeder | None = None
-    battery: Battery | None = None
-    regulator: Regulator | None = None
-    simulation: SimulationOptions = field(default_factory=SimulationOptions)
-    spread: SpreadOptions = field(default_factory=SpreadOptions)
-    checks: CheckPolicy = field(default_factory=CheckPolicy)
-    note: str = ""
-    origin: str = "<design>"  # file the design came from, for messages
+    title: str = key("title", "str", "one line naming the design; shown in tables and reports", shown="file name")
+    source: Source = key("source", "table", "the winding or inverter output that feeds the rectifier",
+                         required=True, of=SOURCE_KINDS)
+    rectifier: Rectifier = key("rectifier", "table", "the rectifier arrangement and its diodes", required=True,
+                               of=(Rectifier,))
+    filters: tuple[FilterSection, ...] = key("filter", "array", "filter sections from the rectifier towards the "
+                                             "load, in order", (), of=(FilterSection,))
+    loads: tuple[Load, ...] = key("load", "table", "the load across the output (omit for an idle supply); "
+                                  "[[load]] for several", (), of=LOAD_KINDS)
+    bleeder: Bleeder | None = key("bleeder", "table", "a bleeder resistor across the output", None, of=(Bleeder,))
+    battery: Battery | None = key("battery", "table", "the battery behind an inverter source", None, of=(Battery,))
+    regulator: Regulator | None = key("regulator", "table", "a shunt or series regulator between the filter and the "
+                                      "loads", None, of=REGULATOR_KINDS)
+    simulation: SimulationOptions = key("simulation", "table", "how the analyses run", SimulationOptions(),
+                                        of=(SimulationOptions,))
+    spread: SpreadOptions = key("spread", "table", "how `simkit spread` draws values within their tolerances",
+                                SpreadOptions(), of=(SpreadOptions,))
+    checks: CheckPolicy = key("checks", "table", "derating policy and safety limits of `simkit check`",
+                              CheckPolicy(), of=(CheckPolicy,))
+    note: str = key("note", "str", "free text for reports (never written into a deck)", "", shown='""')
+    library: str = key("library", "str", "a parts file of your own (TOML, path relative to the design file): diodes "
+                       'by name, and ratings for capacitors, chokes and resistors used with part = "NAME"', "")
+    origin: str = field(default="<design>", compare=False)  # file the design came from, for messages
 
     @property
     def output_is_series_element(self) -> bool:
         return bool(self.filters) and self.filters[-1].kind in ("l", "r")
 
     @property
-    def keyed(self) -> tuple[Load, ...]:
-        return tuple(ld for ld in self.loads if ld.kind == "keyed")
+    def keyed(self) -> tuple[KeyedLoad, ...]:
+        return tuple(ld for ld in self.loads if isinstance(ld, KeyedLoad))
 
     @property
     def has_timeline(self) -> bool:
         """Anything that changes after switch-on: warm-ups or load steps."""
         d = self.rectifier.diode
-        return any(ld.warmup or ld.kind == "steps" for ld in self.loads) or bool(
+        return any(ld.warmup or isinstance(ld, StepsLoad) for ld in self.loads) or bool(
             d.vacuum and d.vacuum.warmup_full > 0)

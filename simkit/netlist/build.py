@@ -26,7 +26,18 @@ import math
 import re
 from dataclasses import replace
 
-from simkit.design.model import Design, DiodeModel, KeyState, Load
+from simkit.design.model import (
+    CurrentLoad,
+    Design,
+    DiodeModel,
+    KeyedLoad,
+    KeyState,
+    Load,
+    ResistorLoad,
+    ShuntRegulator,
+    StepsLoad,
+    TubeLoad,
+)
 from simkit.netlist import drives
 from simkit.netlist.circuit import (
     CapRef,
@@ -54,23 +65,10 @@ MODES = ("steady", "start", "keyed", "mean")
 WARMUP_RISE = 0.2
 
 
-def keying_drive(load: Load) -> drives.Drive:
-    k = load.keying
-    assert k is not None
-    if k.morse:
-        assert k.wpm is not None
-        return drives.morse_keying(k.morse, k.wpm, k.rise, k.fall)
-    assert k.rate is not None and k.duty is not None
-    return drives.rate_keying(k.rate, k.duty, k.rise, k.fall)
-
-
-def key_duty(load: Load) -> float:
-    """Share of time key-down (rise and fall counted half), for the mean load."""
-    d = keying_drive(load)
-    assert d.period
-    pts = d.breakpoints(0.0, d.period)
-    area = sum((t1 - t0) * (y0 + y1) / 2 for (t0, y0), (t1, y1) in itertools.pairwise(pts))
-    return area / d.period
+def keying_drive(load: KeyedLoad) -> drives.Drive:
+    """The key of a keyed load: 0 up .. 1 down, repeating every keying cycle."""
+    elements, cycle = load.elements()
+    return drives.keying_drive(elements, cycle, load.rise, load.fall)
 
 
 def zener_model(name: str, bv: float, rdyn: float) -> str:
@@ -374,8 +372,7 @@ class _Builder:
         reg = self.d.regulator
         assert reg is not None
         self.c.regulator = {"input": "raw", "output": "out"}
-        if reg.kind == "shunt":
-            assert reg.resistance is not None
+        if isinstance(reg, ShuntRegulator):
             self.c.add(Element("RREG", ("raw", "out"), spice(reg.resistance), comment="shunt dropping resistor"))
             self.c.resistors.append(ResRef("RREG", "raw", "out", reg.resistance, "regulator"))
             self.c.add(Element("VSHUNT", ("out", "sh"), "0", comment="senses the shunt current"))
@@ -405,7 +402,6 @@ class _Builder:
             return
         z = reg.zener
         dev = reg.device
-        assert z is not None and dev is not None and reg.reference is not None
         crest = self.d.source.vpeak * {"doubler": 2, "cascade": 2 * self.d.rectifier.stages}.get(
             self.d.rectifier.topology, 1)
         r_ref = max((0.9 * crest - reg.reference) / reg.reference_current, 1e3)
@@ -456,22 +452,21 @@ class _Builder:
                 return f"{v}/{spice(st.r)}"
             return f"{spice(st.i or 0.0)}*tanh(max({v},0)/{knee})"
 
-        if ld.kind == "resistor" and not warm:
-            assert ld.r is not None
+        if isinstance(ld, ResistorLoad) and not warm:
             self.c.add(Element(f"RLOAD{sfx}", (lo, "0"), spice(ld.r), comment="load"))
             self.c.resistors.append(ResRef(f"RLOAD{sfx}", lo, "0", ld.r, "load"))
             self.c.loads.append(LoadRef(f"RLOAD{sfx}", sense, node, idx))
             return
-        if ld.kind == "resistor":
-            expr = f"{v}/{spice(ld.r or 1.0)}"
+        if isinstance(ld, ResistorLoad):
+            expr = f"{v}/{spice(ld.r)}"
             what = "resistive load"
-        elif ld.kind == "current":
+        elif isinstance(ld, CurrentLoad):
             expr = state(KeyState(i=ld.i))
             what = "constant-current load"
-        elif ld.kind == "tube":
+        elif isinstance(ld, TubeLoad):
             expr = f"{spice(ld.perveance, 9)}*pow(max({v},0),1.5)"
-            what = f"tube load, i = P v^1.5 through {spice(ld.tube_v or 0)} V {spice(ld.tube_i or 0)} A"
-        elif ld.kind == "steps":
+            what = f"tube load, i = P v^1.5 through {spice(ld.tube_v)} V {spice(ld.tube_i)} A"
+        elif isinstance(ld, StepsLoad):
             if self.mode == "start":
                 step = self.drive(f"VSTEP{sfx}", f"step{sfx}", drives.steps_drive(ld.steps, STEP_EDGE),
                                   comment="load current steps (A as V)")
@@ -479,19 +474,17 @@ class _Builder:
             else:
                 expr = state(KeyState(i=ld.steps[-1][1]))
             what = "stepped load"
+        elif self.mode == "keyed":
+            key = self.drive(f"VKEY{sfx}", f"key{sfx}", keying_drive(ld), comment="key: 0 up .. 1 down")
+            expr = f"({state(ld.down)})*{key}+({state(ld.up)})*(1-{key})"
+            what = "keyed load"
+        elif self.mode == "mean":
+            dty = spice(ld.duty_share(), 9)
+            expr = f"({state(ld.down)})*{dty}+({state(ld.up)})*(1-{dty})"
+            what = "keyed load, duty-weighted mean"
         else:
-            assert ld.down is not None and ld.up is not None
-            if self.mode == "keyed":
-                key = self.drive(f"VKEY{sfx}", f"key{sfx}", keying_drive(ld), comment="key: 0 up .. 1 down")
-                expr = f"({state(ld.down)})*{key}+({state(ld.up)})*(1-{key})"
-                what = "keyed load"
-            elif self.mode == "mean":
-                dty = spice(key_duty(ld), 9)
-                expr = f"({state(ld.down)})*{dty}+({state(ld.up)})*(1-{dty})"
-                what = "keyed load, duty-weighted mean"
-            else:
-                expr = state(ld.down)
-                what = "keyed load held key-down"
+            expr = state(ld.down)
+            what = "keyed load held key-down"
         self.c.add(Element(f"BLOAD{sfx}", (lo, "0"), f"I=({expr}){warm}", comment=what))
         self.c.loads.append(LoadRef(f"BLOAD{sfx}", sense, node, idx))
 

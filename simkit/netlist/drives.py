@@ -1,13 +1,10 @@
-"""Time functions that drive a circuit after switch-on: keying, Morse, heater warm-up, load steps.
+"""Time functions that drive a circuit after switch-on: keying, heater warm-up, load steps.
 
 A :class:`Drive` is a piecewise-linear function of absolute time since switch-on, optionally
 repeating.  It is rendered into an ngspice ``PWL`` source for any window of a run, so a run
-restarted at a later time (a later chunk) continues the same function exactly.
-
-Morse timing follows ITU-R M.1677-1 (International Morse code), section 2: a dash is three
-dots; the space between the signals of one character is one dot, between characters three
-dots, between words seven dots.  The speed in words per minute uses the standard word
-"PARIS" of 50 dot units, so one dot lasts 1.2/wpm seconds.
+restarted at a later time (a later chunk) continues the same function exactly.  When the key is
+down comes from the design (:meth:`simkit.design.loads.KeyedLoad.elements`: rate keying or
+Morse timing).
 """
 
 from __future__ import annotations
@@ -18,61 +15,6 @@ import math
 from dataclasses import dataclass
 
 from simkit.units import spice
-
-#: ITU-R M.1677-1, Part I, section 1: letters, figures and the punctuation the recommendation lists.
-MORSE: dict[str, str] = {
-    "A": ".-", "B": "-...", "C": "-.-.", "D": "-..", "E": ".", "F": "..-.", "G": "--.", "H": "....",
-    "I": "..", "J": ".---", "K": "-.-", "L": ".-..", "M": "--", "N": "-.", "O": "---", "P": ".--.",
-    "Q": "--.-", "R": ".-.", "S": "...", "T": "-", "U": "..-", "V": "...-", "W": ".--", "X": "-..-",
-    "Y": "-.--", "Z": "--..",
-    "1": ".----", "2": "..---", "3": "...--", "4": "....-", "5": ".....", "6": "-....", "7": "--...",
-    "8": "---..", "9": "----.", "0": "-----",
-    ".": ".-.-.-", ",": "--..--", ":": "---...", "?": "..--..", "'": ".----.", "-": "-....-",
-    "/": "-..-.", "(": "-.--.", ")": "-.--.-", '"': ".-..-.", "=": "-...-", "+": ".-.-.", "@": ".--.-.",
-}
-
-
-def morse_problem(text: str) -> str | None:
-    """Why a text cannot be sent (None when it can)."""
-    if not text.strip():
-        return "the Morse text is empty"
-    if len(text) > 500:
-        return f"the Morse text is {len(text)} characters long; keep it under 500"
-    bad = sorted({c for c in text.upper() if c != " " and c not in MORSE})
-    if bad:
-        shown = ", ".join(repr(c) for c in bad[:5])
-        return f"no Morse code for {shown} (ITU-R M.1677-1 letters, figures and . , : ? ' - / ( ) \" = + @)"
-    return None
-
-
-def morse_elements(text: str) -> tuple[list[tuple[int, int]], int]:
-    """Key-down elements of a text in dot units, and the length of one repetition.
-
-    Returns ``([(start, length), ...], cycle)``: each element starts ``start`` units after the
-    beginning and lasts ``length`` units (1 for a dot, 3 for a dash).  The cycle ends with a
-    word space (7 units) so that repetitions are separate words.
-    """
-    words = text.upper().split()
-    t = 0
-    out: list[tuple[int, int]] = []
-    for wi, word in enumerate(words):
-        if wi:
-            t += 7 - 1  # a word space: seven units after the last element
-        for ci, ch in enumerate(word):
-            if ci:
-                t += 3 - 1  # a character space replaces the element space already added
-            code = MORSE[ch]
-            for ei, sym in enumerate(code):
-                if ei:
-                    t += 1
-                length = 1 if sym == "." else 3
-                out.append((t, length))
-                t += length
-            t += 1  # element space; corrected above at character and word boundaries
-    # After the last element: a word space before the text repeats.
-    cycle = t - 1 + 7
-    return out, cycle
-
 
 @dataclass(frozen=True)
 class Drive:
@@ -157,19 +99,6 @@ def keying_drive(elements: list[tuple[float, float]], cycle: float, rise: float,
     pts.append((cycle, 0.0))
     pts.sort(key=lambda p: p[0])
     return Drive(tuple(pts), period=cycle)
-
-
-def rate_keying(rate: float, duty: float, rise: float, fall: float) -> Drive:
-    """Key down for ``duty`` of every 1/rate seconds, starting at the beginning of each cycle."""
-    cycle = 1.0 / rate
-    return keying_drive([(0.0, duty * cycle)], cycle, rise, fall)
-
-
-def morse_keying(text: str, wpm: float, rise: float, fall: float) -> Drive:
-    """Key a text at a speed (ITU-R M.1677-1 timing, PARIS: one dot = 1.2/wpm s)."""
-    unit = 1.2 / wpm
-    elements, cycle = morse_elements(text)
-    return keying_drive([(s * unit, n * unit) for s, n in elements], cycle * unit, rise, fall)
 
 
 def ramp(start: float, full: float) -> Drive:

@@ -26,6 +26,7 @@ from typing import TYPE_CHECKING, Any
 
 from simkit.report.document import Document
 from simkit.report.outputs import OutputDir
+from simkit.design.vocab import value_rows
 from simkit.report.text import show, unit_of
 from simkit.units import eng
 
@@ -295,107 +296,36 @@ def _helpers_present(result: RunResult) -> list[tuple[str, list[str]]]:
     return list(grouped.items())
 
 
-_UNIT_FOR_SCHEMA = {"V": "V", "A": "A", "ohm": "Ω", "F": "F", "H": "H", "Hz": "Hz", "s": "s", "W": "W"}
+#: How a unit is shown in the inputs table.
+_SHOWN = {"V": "V", "A": "A", "ohm": "Ω", "F": "F", "H": "H", "Hz": "Hz", "s": "s", "W": "W", "Ah": "Ah"}
 
 
 def _format(value: Any, unit: str) -> str:
     if isinstance(value, bool):
         return "yes" if value else "no"
-    if isinstance(value, (int, float)) and not isinstance(value, bool):
-        if unit in _UNIT_FOR_SCHEMA:
-            return eng(float(value), _UNIT_FOR_SCHEMA[unit])
+    if isinstance(value, (int, float)):
+        if unit in _SHOWN:
+            return eng(float(value), _SHOWN[unit])
         if unit == "%":
             return f"{float(value) * 100:g} %"
         if unit == "deg":
             return f"{float(value):g}°"
         return f"{value:g}" if isinstance(value, float) else str(value)
-    return str(value)
-
-
-def _key(section: str, key: str) -> Any:
-    from simkit.design.schema import SECTIONS as SCHEMA
-
-    return SCHEMA.get(section, {}).get(key)
+    if isinstance(value, tuple):
+        return ", ".join("/".join(_format(x, "") for x in v) if isinstance(v, tuple) else _format(v, "")
+                         for v in value)
+    name = getattr(value, "name", None)  # a library part: its name (its source is in the parts table)
+    return str(name) if isinstance(name, str) else str(value)
 
 
 def _input_rows(result: RunResult) -> list[list[str]]:
-    """The resolved design as (key, value, meaning) rows, in the design file's spelling."""
-    from simkit.design.loader import design_to_inputs
-
-    inputs = design_to_inputs(result.design)
+    """The design as (key, value, meaning) rows: keys exactly as ``--set`` spells them, values with units."""
     rows: list[list[str]] = []
-    for section, body in inputs.items():
-        if section in ("title", "note", "origin") or body is None:
+    for path, value, k in value_rows(result.design):
+        if path in ("title", "note"):
             continue
-        if section == "filters" and isinstance(body, (list, tuple)):
-            for k, sec in enumerate(body):
-                kind = sec.get("kind")
-                spec = _key("filter", kind)
-                rows.append([f"filter.{k}.{kind}", _format(sec.get("value"), spec.unit if spec else ""),
-                             spec.doc if spec else ""])
-                for extra in ("esr", "dcr", "tolerance"):
-                    v = sec.get(extra)
-                    if v:
-                        spec = _key("filter", extra)
-                        rows.append([f"filter.{k}.{extra}", _format(v, spec.unit if spec else ""),
-                                     spec.doc if spec else ""])
-            continue
-        if isinstance(body, (list, tuple)):
-            for k, item in enumerate(body):
-                if isinstance(item, dict):
-                    rows += _section_rows(f"{section}.{k}", section.rstrip("s"), item)
-            continue
-        if isinstance(body, dict):
-            rows += _section_rows(section, section, body)
-        else:
-            spec = _key("", section)
-            rows.append([section, _format(body, spec.unit if spec else ""), spec.doc if spec else ""])
-    return rows
-
-
-def _section_rows(path: str, section: str, body: dict[str, Any]) -> list[list[str]]:
-    rows: list[list[str]] = []
-    for key, value in body.items():
-        if value is None or value == () or value == []:
-            continue
-        if section == "rectifier" and key in ("stages", "capacitance") and \
-                body.get("topology") not in ("doubler", "cascade"):
-            continue
-        if section == "rectifier" and key == "stages" and body.get("topology") != "cascade":
-            continue
-        if section == "rectifier" and key == "diode" and isinstance(value, dict):
-            rows += _diode_rows(path, value)
-            continue
-        if isinstance(value, dict):
-            rows += _section_rows(f"{path}.{key}", f"{section}.{key}", value)
-            continue
-        if isinstance(value, (list, tuple)):
-            text = ", ".join(_format(v, "") if not isinstance(v, list) else "/".join(_format(x, "") for x in v)
-                             for v in value)
-            rows.append([f"{path}.{key}", text, ""])
-            continue
-        spec = _key(section, key)
-        rows.append([f"{path}.{key}", _format(value, spec.unit if spec else ""), spec.doc if spec else ""])
-    return rows
-
-
-def _diode_rows(path: str, diode: dict[str, Any]) -> list[list[str]]:
-    name = diode.get("name", "")
-    label = name if name != "inline" else "inline model"
-    rows = [[f"{path}.diode", label, str(diode.get("source") or "the rectifier diode")]]
-    model = []
-    for key, unit in (("is", "A"), ("n", ""), ("rs", "ohm"), ("bv", "V"), ("tt", "s"), ("cjo", "F")):
-        v = diode.get(key)
-        if v is not None and (v != 0 or key in ("is", "n", "rs")):
-            model.append(f"{key} {_format(v, unit)}")
-    if model and diode.get("vacuum") is None:
-        rows.append([f"{path}.diode (model)", ", ".join(model), "junction parameters simkit simulates"])
-    ratings = diode.get("ratings") or {}
-    rated = [f"{label} {_format(ratings[k], u)}" for k, label, u in
-             (("vrrm", "VRRM", "V"), ("ifav", "IF(AV)", "A"), ("ifsm", "IFSM", "A"), ("trr", "trr", "s"))
-             if ratings.get(k) is not None]
-    if rated:
-        rows.append([f"{path}.diode (ratings)", ", ".join(rated), "datasheet limits"])
+        unit = k.unit if k.unit not in ("table", "array", "list", "choice", "str", "int", "bool") else ""
+        rows.append([path, _format(value, unit), k.doc])
     return rows
 
 
