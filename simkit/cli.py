@@ -14,6 +14,7 @@ from typing import Any
 import click
 
 from simkit import __version__
+from simkit.design.model import TOPOLOGIES
 from simkit.errors import SimkitError, UsageError, shown
 
 SET_HELP = "Override one design value, e.g. --set filter.0.c=220u (repeatable)."
@@ -141,7 +142,8 @@ def check(design: str, overrides: tuple[str, ...], as_json: bool) -> None:
 
     Exit status 1 when any verdict is fail, so scripts can gate on it.
     """
-    from simkit.checks import check_design, report_text
+    from simkit.checks import check_design
+    from simkit.report.check_text import report_text
 
     d = _load(design, overrides)
     rep = check_design(d)
@@ -204,7 +206,7 @@ def parts(name: str | None) -> None:
 
 @cli.command()
 @click.argument("file", type=click.Path(dir_okay=False))
-@click.option("--topology", type=click.Choice(["half-wave", "centre-tap", "bridge", "doubler", "cascade"]),
+@click.option("--topology", type=click.Choice(TOPOLOGIES),
               default="bridge", show_default=True)
 def new(file: str, topology: str) -> None:
     """Write a starting design file (never over an existing file)."""

@@ -12,7 +12,8 @@ from simkit.design.loader import load_design
 from simkit.pipeline import simulate
 from simkit.report.design_report import report_files, run_checks, write_report
 from simkit.report.outputs import OutputDir
-from simkit.report.text import CAUTIONS, show
+from simkit.report.text import show
+from simkit.safety import CAUTIONS
 
 #: The figures the demo prints for each design.
 SUMMARY = ("vout_dc_v", "ripple_pp_v", "iout_dc_a", "diode_peak_a", "diode_piv_v", "surge_peak_a",

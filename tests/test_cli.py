@@ -142,6 +142,24 @@ def test_new_writes_a_valid_design_and_never_overwrites(topology: str, tmp_path:
     assert p.read_text() == before
 
 
+def test_new_templates_explain_every_key_in_the_reference_words() -> None:
+    # Every value line carries the key's description from the design vocabulary (the reference's words);
+    # a key the vocabulary does not know would come out bare.
+    from simkit.design.model import TOPOLOGIES, Design
+    from simkit.design.vocab import key_at
+    from simkit.templates import template
+
+    for topology in TOPOLOGIES:
+        table = ""
+        for line in template(topology).splitlines():
+            if line.startswith("["):
+                table = line.strip("[]")
+            elif "=" in line and not line.startswith(("#", "title")):
+                k = line.split("=")[0].strip()
+                spec = key_at(Design, table if k == "kind" else f"{table}.{k}")
+                assert spec is not None and line.endswith("# " + spec.doc), (topology, line)
+
+
 def test_unknown_command_and_option_exit_2(capsys: pytest.CaptureFixture[str]) -> None:
     code, _, err = call(["simulate"], capsys)
     assert code == 2 and "No such command" in err

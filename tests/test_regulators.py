@@ -51,7 +51,7 @@ def test_zener_string_regulation_arithmetic() -> None:
         'resistance = "20" }\n[load]\nkind = "current"\ni = "{i}"\n'
     a = run(base.replace("{i}", "10m"))
     b = run(base.replace("{i}", "20m"))
-    ia, ib = a.parts["DZ"]["current_min_a"], b.parts["DZ"]["current_min_a"]
+    ia, ib = a.parts["DZ"].current_min_a, b.parts["DZ"].current_min_a
     assert ia - ib == pytest.approx(0.010, rel=0.02)
     # Measured: the output change within 0.001 %, the level within 0.4 mV (the zener current ripples a little).
     dv = a.metrics["reg_vout_v"] - b.metrics["reg_vout_v"]
@@ -67,7 +67,7 @@ def test_glow_tube_regulation_against_the_od3_sheet() -> None:
                    f'kind = "current"\ni = "{load}"\n')
 
     light, heavy = od3("15m"), od3("25m")
-    i_light, i_heavy = light.parts["GLOW"]["current_min_a"], heavy.parts["GLOW"]["current_min_a"]
+    i_light, i_heavy = light.parts["GLOW"].current_min_a, heavy.parts["GLOW"].current_min_a
     for r, i in ((light, i_light), (heavy, i_heavy)):
         assert 5e-3 < i < 40e-3
         assert abs(r.metrics["reg_vout_v"] - 150.0) <= 5.5
@@ -133,4 +133,4 @@ def test_glow_tube_that_fails_to_strike_at_low_mains() -> None:
     strike = next(v for v in rep.verdicts if v.rule == "strikes at switch-on")
     assert strike.verdict == "fail" and strike.corner.startswith("low mains")
     assert strike.value < 370 and strike.limit == pytest.approx(370.0)
-    assert rep.corners.results[strike.corner].parts["GLOW"]["struck"] is False
+    assert rep.corners.results[strike.corner].parts["GLOW"].struck is False

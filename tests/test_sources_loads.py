@@ -13,6 +13,7 @@ from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
 from simkit.analysis import metrics as mx
+from simkit.design import morse
 from simkit.design.loader import design_from_dict, parse_toml_text
 from simkit.design.model import DiodeModel
 from simkit.errors import DesignError
@@ -37,7 +38,7 @@ def test_paris_is_fifty_units() -> None:
     # unit within a character, three between characters and seven between words.  Counting words per
     # minute with the word PARIS (and its word space) is an operating convention (common practice): PARIS
     # is then 50 units long, which is why a dot lasts 1.2/wpm s.
-    elements, cycle = drives.morse_elements("PARIS")
+    elements, cycle = morse.morse_elements("PARIS")
     assert cycle == 50
     # P = .--.  A = .-  R = .-.  I = ..  S = ...  (the letters of ITU-R M.1677-1)
     lengths = [n for _, n in elements]
@@ -51,7 +52,7 @@ def test_paris_is_fifty_units() -> None:
 def test_word_at_20_wpm_lasts_three_seconds() -> None:
     # ITU-R M.1677-1's lengths with the PARIS convention (common practice): at 20 wpm a dot is 1.2/20 = 60 ms
     # and PARIS plus its word space 3.0 s.
-    d = drives.morse_keying("PARIS", 20, 0.0, 0.0)
+    d = drives.keying_drive(*morse.keying_elements("PARIS", 20), 0.0, 0.0)
     assert d.period == pytest.approx(3.0)
     downs = d.intervals(0.0, 3.0)  # edges of a microsecond, so 1e-5 s of tolerance
     assert downs[0] == pytest.approx((0.0, 0.06), abs=1e-5)
@@ -62,13 +63,13 @@ def test_word_at_20_wpm_lasts_three_seconds() -> None:
 
 def test_two_words_are_seven_units_apart() -> None:
     # ITU-R M.1677-1: the space between words is seven units.
-    elements, cycle = drives.morse_elements("E E")
+    elements, cycle = morse.morse_elements("E E")
     assert elements == [(0, 1), (8, 1)] and cycle == 16
 
 
 def test_morse_refuses_what_it_cannot_send() -> None:
-    assert drives.morse_problem("CQ DE TEST") is None
-    assert "no Morse code" in (drives.morse_problem("hello!\n.control") or "")
+    assert morse.morse_problem("CQ DE TEST") is None
+    assert "no Morse code" in (morse.morse_problem("hello!\n.control") or "")
 
 
 @pytest.mark.parametrize("text", [".include /etc/passwd", "shell touch x", "1k\n.control\nshell rm x\n.endc"])
@@ -329,7 +330,7 @@ kind = "tube"
 point = { v = "250", i = "60m" }
 """
     r = simulate(design_from_dict(parse_toml_text(toml)))
-    v = r.parts["BLOAD"]["dc_v"]
+    v = r.parts["BLOAD"].dc_v
     assert r.metrics["iout_dc_a"] == pytest.approx(0.06 * (v / 250) ** 1.5, rel=5e-6)
 
 
@@ -493,14 +494,14 @@ r = "100k"
 """
     r = simulate(design_from_dict(parse_toml_text(toml)))
     p = r.parts
-    assert p["RLOAD1"]["node"] == "rect" and p["BLOAD2"]["node"] == "out"
-    through_r1 = p["R1"]["dc_a"]
-    assert through_r1 == pytest.approx(p["BLOAD2"]["dc_a"] + p["RBLEED"]["dc_a"], rel=2e-4)
+    assert p["RLOAD1"].node == "rect" and p["BLOAD2"].node == "out"
+    through_r1 = p["R1"].dc_a
+    assert through_r1 == pytest.approx(p["BLOAD2"].dc_a + p["RBLEED"].dc_a, rel=2e-4)
     # A current load draws its current (its 5 V knee is far below the 386 V it sees).
-    assert p["BLOAD2"]["dc_a"] == pytest.approx(0.02, rel=1e-9)
+    assert p["BLOAD2"].dc_a == pytest.approx(0.02, rel=1e-9)
     # Plumbing: iout_dc_a is defined as the sum of the loads' currents.
-    assert r.metrics["iout_dc_a"] == pytest.approx(p["RLOAD1"]["dc_a"] + p["BLOAD2"]["dc_a"], rel=1e-12)
-    assert p["RLOAD1"]["dc_a"] == pytest.approx(p["RLOAD1"]["dc_v"] / 10e3, rel=1e-9)
+    assert r.metrics["iout_dc_a"] == pytest.approx(p["RLOAD1"].dc_a + p["BLOAD2"].dc_a, rel=1e-12)
+    assert p["RLOAD1"].dc_a == pytest.approx(p["RLOAD1"].dc_v / 10e3, rel=1e-9)
 
 
 @pytest.mark.ngspice

@@ -22,7 +22,7 @@ from simkit.analysis import runs, steady
 from simkit.design.loader import design_from_dict
 from simkit.errors import DesignError, SimulationError
 from simkit.netlist.build import build_circuit
-from simkit.pipeline import simulate
+from simkit.pipeline import WindingResult, simulate
 
 pytestmark = pytest.mark.ngspice
 
@@ -136,7 +136,7 @@ def test_huge_reservoir_gets_its_true_steady_state_and_a_warning_about_its_rise(
     # Energy conservation: the winding delivers what the load takes plus the losses (not the load's
     # power out of the capacitor's charge).
     p_load = m["vout_dc_v"] ** 2 / 5e3
-    p_src = sum(v["apparent_power_va"] for k, v in r.parts.items() if v.get("role") == "winding")
+    p_src = sum(w.apparent_power_va for w in r.of_kind(WindingResult).values())
     assert p_src > p_load
     # A far larger or smaller reservoir changes the ripple, not the DC (the inductance sets it).
     r3 = simulate(design_from_dict({**HUGE, "filter": [{"c": "0.5"}]}))

@@ -30,7 +30,7 @@ import pytest
 
 from simkit.design.loader import design_from_dict
 from simkit.engine.ngspice import Engine
-from simkit.pipeline import RunResult, simulate
+from simkit.pipeline import DiodeResult, RunResult, simulate
 from tests.refsolver import Choke, Circuit, Diode, Section, Snubber, SteadyState, SwitchOn, steady_state, switch_on
 
 pytestmark = pytest.mark.ngspice
@@ -218,10 +218,11 @@ def comparison(case: Case, result: RunResult) -> list[tuple[str, float, float, f
     m = result.metrics
     rows = [(k, m[k], getattr(ref, a), TOLERANCE[cls]) for k, a, cls in STEADY_FIGURES]
     if case.choke is not None:
-        rows += [(f"L1 {k}", result.parts["L1"][k], getattr(ref, a), TOLERANCE[cls]) for k, a, cls in CHOKE_FIGURES]
+        choke = result.parts["L1"]
+        rows += [(f"L1 {k}", getattr(choke, k), getattr(ref, a), TOLERANCE[cls]) for k, a, cls in CHOKE_FIGURES]
     on = reference_switch_on(case)
     rows.append(("surge_peak_a", m["surge_peak_a"], on.surge, TOLERANCE["surge"]))
-    i2t = max(p["surge_i2t_a2s"] for name, p in result.parts.items() if name in {d.name for d in result.circuit.diodes})
+    i2t = max(result.part(d.name, DiodeResult).surge_i2t_a2s for d in result.circuit.diodes)
     rows.append(("surge I2t", i2t, surge_i2t(on, 1 / case.f), TOLERANCE["i2t"]))
     return [(k, s, r, s / r - 1.0, tol) for k, s, r, tol in rows]
 

@@ -6,12 +6,12 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
+from simkit import __version__
 from simkit.checks.corners import Corners, corner_names, run_corners
 from simkit.checks.rules import Findings, Verdict, evaluate
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine
-from simkit.report.text import CAUTIONS
-from simkit.units import eng
+from simkit.safety import CAUTIONS
 
 #: Preferred fuse ratings, A (the R10 series used for miniature fuses, IEC 60127 style; from memory [M]).
 FUSE_SERIES = (1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0)
@@ -51,8 +51,6 @@ class CheckReport:
                 "cautions": CAUTIONS}
 
     def to_json(self) -> dict[str, Any]:
-        from simkit import __version__
-
         return {"simkit": __version__, "design": self.design.title,
                 "verdicts": [v.to_json() for v in self.verdicts], "summary": self.summary()}
 
@@ -82,41 +80,3 @@ def check_design(design: Design, engine: Engine | None = None) -> CheckReport:
     corners = run_corners(design, engine)
     findings = evaluate(design, corners)
     return CheckReport(design, corners, findings, suggest_fuse(design, corners))
-
-
-def _show(v: float, unit: str) -> str:
-    if unit == "missing":
-        return f"{v:g} missing"
-    if not math.isfinite(v):
-        return "never" if unit == "s" else str(v)
-    if unit in ("A2s",):
-        return f"{v:.4g} A²s"
-    return eng(v, {"ohm": "Ω", "VA": "VA"}.get(unit, unit))
-
-
-def report_text(rep: CheckReport) -> str:
-    rows = [("part", "rule", "value", "limit", "margin", "verdict", "corner")]
-    for v in rep.verdicts:
-        margin = "" if v.margin is None or not math.isfinite(v.margin) else f"{v.margin * 100:+.0f} %"
-        limit = "none" if v.unit == "missing" else _show(v.limit, v.unit)
-        rows.append((v.part, v.rule, _show(v.value, v.unit), limit, margin, v.verdict.upper()
-                     if v.verdict != "pass" else "pass", v.corner))
-    widths = [max(len(r[k]) for r in rows) for k in range(len(rows[0]))]
-    lines = [f"{rep.design.title}", f"  design file: {rep.design.origin}", ""]
-    for k, r in enumerate(rows):
-        lines.append("  " + "  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip())
-        if k == 0:
-            lines.append("  " + "  ".join("-" * w for w in widths))
-    s = rep.summary()
-    lines.append("")
-    lines.append(f"  {s['pass']} pass, {s['marginal']} marginal, {s['fail']} fail: {s['result'].upper()}")
-    if s["not_checked"]:
-        lines.append("  not checked (no rating given):")
-        lines += [f"    - {x}" for x in s["not_checked"]]
-    fz = rep.fuse
-    lines.append(f"  suggested fuse: {eng(fz['rating_a'], 'A')} {fz['type']}, {fz['where']} "
-                 f"({fz['why']}; highest RMS current {eng(fz['rms_current_a'], 'A')})")
-    lines.append("  the limits' sources are in --json (basis); derating per [checks] in the design file")
-    lines.append("")
-    lines.append(CAUTIONS)
-    return "\n".join(lines) + "\n"

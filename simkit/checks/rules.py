@@ -16,8 +16,8 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from simkit.checks.corners import Corners, corner_names
-from simkit.design.model import Design, PartRating
-from simkit.pipeline import RunResult
+from simkit.design.model import Design, PartRating, SeriesRegulator, ShuntRegulator
+from simkit.pipeline import DiodeResult, RegulatorResult, RunResult
 
 
 @dataclass(frozen=True)
@@ -75,6 +75,13 @@ def _worst(corners: Corners, names: list[str], get: Callable[[RunResult], float 
     return best
 
 
+def _quantity(r: RunResult, part: str, name: str) -> float | None:
+    """One quantity of one part's result (None when the part has no such quantity in this run)."""
+    p = r.parts.get(part)
+    v = getattr(p, name, None) if p is not None else None
+    return float(v) if isinstance(v, float | int) and not isinstance(v, bool) else None
+
+
 def evaluate(design: Design, corners: Corners) -> Findings:
     pol = design.checks
     f = Findings()
@@ -88,7 +95,7 @@ def evaluate(design: Design, corners: Corners) -> Findings:
         f.verdicts.append(Verdict(part, rule, value, limit, unit, corner, verdict, margin, basis))
 
     def part_max(part: str, key: str, names: list[str] = steady) -> tuple[float, str] | None:
-        return _worst(corners, names, lambda r: r.parts.get(part, {}).get(key))
+        return _worst(corners, names, lambda r: _quantity(r, part, key))
 
     any_result = corners.results[cn["heavy"]]
     circuit = any_result.circuit
@@ -98,10 +105,12 @@ def evaluate(design: Design, corners: Corners) -> Findings:
 
     # --- rectifiers -----------------------------------------------------------------------------------
     for d in circuit.diodes:
-        piv = _worst(corners, steady, lambda r, n=d.name: max(r.parts[n]["piv_v"], r.parts[n]["switch_on_piv_v"]))
+        piv = _worst(corners, steady, lambda r, n=d.name: max(r.part(n, DiodeResult).piv_v,
+                                                                 r.part(n, DiodeResult).switch_on_piv_v))
         assert piv is not None
-        surge = (any_result.parts[d.name]["surge_peak_a"], cn["on"])
-        i2t = (any_result.parts[d.name]["surge_i2t_a2s"], cn["on"])
+        on_diode = any_result.part(d.name, DiodeResult)
+        surge = (on_diode.surge_peak_a, cn["on"])
+        i2t = (on_diode.surge_i2t_a2s, cn["on"])
         avg = part_max(d.name, "avg_a", loaded)
         peak = part_max(d.name, "peak_a", loaded)
         if vac is None:
@@ -147,8 +156,8 @@ def evaluate(design: Design, corners: Corners) -> Findings:
             add(diode.name, "input capacitance", first_c, tr.max_input_capacitance, "F", "the design",
                 f"maximum input capacitance {tr.max_input_capacitance * 1e6:g} uF ({src})")
         if tr.dc_current:
-            dc = _worst(corners, loaded, lambda r: sum(p["avg_a"] for k, p in r.parts.items()
-                                                       if k.startswith("D")) / _per_path(design))
+            dc = _worst(corners, loaded, lambda r: sum(p.avg_a for p in r.of_kind(DiodeResult).values())
+                        / _per_path(design))
             if dc:
                 add(diode.name, "DC output current", dc[0], tr.dc_current, "A", dc[1],
                     f"maximum DC output {tr.dc_current * 1e3:g} mA, capacitor input ({src})")
@@ -214,28 +223,28 @@ def evaluate(design: Design, corners: Corners) -> Findings:
     reg = design.regulator
     if reg is not None:
         head = _worst(corners, loaded, lambda r: -r.metrics["reg_headroom_min_v"])
-        if head and reg.kind == "series":
+        if head and isinstance(reg, SeriesRegulator):
             add("MPASS", "headroom (dropout)", -head[0], reg.headroom, "V", head[1],
                 f"at least {reg.headroom:g} V from input to output to keep regulating (regulator.headroom)",
                 minimum=True)
-        if reg.kind == "series" and reg.device is not None:
+        if isinstance(reg, SeriesRegulator):
             dev = reg.device
-            diss = _worst(corners, loaded, lambda r: r.parts["MPASS"]["dissipation_peak_w"])
-            on = (any_result.parts["MPASS"]["switch_on_dissipation_peak_w"], cn["on"])
+            diss = _worst(corners, loaded, lambda r: r.part("MPASS", RegulatorResult).dissipation_peak_w)
+            on = (any_result.part("MPASS", RegulatorResult).switch_on_dissipation_peak_w or 0.0, cn["on"])
             if dev.pd and diss:
                 worst = max(diss, on)
                 add("MPASS", "pass device dissipation", worst[0], pol.resistor_power * dev.pd, "W", worst[1],
                     f"{pol.resistor_power * 100:g} % of PD {dev.pd:g} W at a 25 C case: it needs a heatsink "
                     f"({dev.source})")
-            vds = _worst(corners, steady, lambda r: r.parts["MPASS"]["vds_max_v"])
+            vds = _worst(corners, steady, lambda r: r.part("MPASS", RegulatorResult).vds_max_v)
             if dev.vdss and vds:
                 add("MPASS", "drain-source voltage (SOA)", vds[0], pol.diode_voltage * dev.vdss, "V", vds[1],
                     f"{pol.diode_voltage * 100:g} % of VDSS {dev.vdss:g} V ({dev.source})")
-            idm = _worst(corners, loaded, lambda r: r.parts["MPASS"]["id_max_a"])
+            idm = _worst(corners, loaded, lambda r: r.part("MPASS", RegulatorResult).id_max_a)
             if dev.id_max and idm:
                 add("MPASS", "drain current (SOA)", idm[0], dev.id_max, "A", idm[1],
                     f"ID {dev.id_max:g} A ({dev.source})")
-        if reg.kind == "shunt":
+        if isinstance(reg, ShuntRegulator):
             name = "DZ" if reg.zener is not None else "GLOW"
             lo = _worst(corners, loaded, lambda r: -r.metrics["shunt_current_min_a"])
             hi = _worst(corners, steady, lambda r: r.metrics.get("shunt_current_max_a"))
@@ -253,14 +262,15 @@ def evaluate(design: Design, corners: Corners) -> Findings:
                 r_low = corners.results[low_corner]
                 avail = r_low.metrics["reg_vin_v"] - reg.resistance * r_low.metrics["iout_dc_a"] if reg.resistance \
                     else 0.0
-                if not r_low.parts[name].get("struck", True):
-                    avail = min(avail, r_low.parts[name]["switch_on_voltage_max_v"])
+                shunt = r_low.part(name, RegulatorResult)
+                if shunt.struck is False and shunt.switch_on_voltage_max_v is not None:
+                    avail = min(avail, shunt.switch_on_voltage_max_v)
                 add(name, "strikes at switch-on", avail, g.striking * g.count, "V", low_corner,
                     f"{g.count} x {g.name} strike at {g.striking:g} V each ({g.source}); the value is the raw supply "
                     "less the load current's drop in the dropping resistor", minimum=True)
             elif reg.zener is not None and reg.zener.power:
                 z = reg.zener
-                pz = _worst(corners, steady, lambda r: r.parts["DZ"]["dissipation_w"] / z.count)
+                pz = _worst(corners, steady, lambda r: r.part("DZ", RegulatorResult).dissipation_w / z.count)
                 if pz:
                     add(name, "zener dissipation (each)", pz[0], pol.resistor_power * z.power, "W", pz[1],
                         f"{pol.resistor_power * 100:g} % of {z.power:g} W each (design file)")

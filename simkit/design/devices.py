@@ -12,7 +12,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 from typing import Any, ClassVar
 
-from simkit.design.vocab import Reader, keys, key, read_kind, read_section, show
+from simkit.design.vocab import Reader, key, keys, read_kind, read_section, show
 
 #: Vacuum-diode perveance below this is refused (A/V^1.5): thousands of times below the library's
 #: rectifier tubes, its figures would be numerical noise.
@@ -82,7 +82,7 @@ class InlineSilicon:
     """``diode = { is = ..., n = ..., rs = ... }``: a junction diode given in the design file."""
 
     kind: ClassVar[str] = "silicon"
-    is_: float = key("is", "A", "silicon: saturation current", required=True, need='the saturation current, e.g. "5n"',
+    is_: float = key("is", "A", "saturation current", required=True, need='the saturation current, e.g. "5n"',
                      above=0, maximum=1.0)
     n: float = key("n", "", "emission coefficient (down to 0.01 for a near-ideal diode)", 1.0, shown="1",
                    minimum=0.01, maximum=10.0)
@@ -109,20 +109,20 @@ class InlineVacuum:
     """``diode = { kind = "vacuum", perveance = ... }``: a Child-Langmuir plate given in the design file."""
 
     kind: ClassVar[str] = "vacuum"
-    perveance: float = key("perveance", "", "vacuum: perveance per plate, A/V^1.5 (i = P v^1.5)", required=True,
+    perveance: float = key("perveance", "", "perveance per plate, A/V^1.5 (i = P v^1.5)", required=True,
                            need='the plate perveance in A/V^1.5, e.g. "1m" (i = P v^1.5)', above=0,
                            minimum=MIN_PERVEANCE, maximum=1.0)
-    warmup: float = key("warmup", "s", "vacuum: time to full emission after switch-on (emission starts at half "
+    warmup: float = key("warmup", "s", "time to full emission after switch-on (emission starts at half "
                         "of it)", 0.0, shown="0", minimum=0, maximum=600)
-    piv: float | None = key("piv", "V", "vacuum: rated peak inverse voltage, for checks", None, shown="none",
+    piv: float | None = key("piv", "V", "rated peak inverse voltage, for checks", None, shown="none",
                             above=0)
-    peak_current: float | None = key("peak_current", "A", "vacuum: rated peak plate current, for checks", None,
+    peak_current: float | None = key("peak_current", "A", "rated peak plate current, for checks", None,
                                      shown="none", above=0)
-    dc_current: float | None = key("dc_current", "A", "vacuum: rated DC output current, for checks", None,
+    dc_current: float | None = key("dc_current", "A", "rated DC output current, for checks", None,
                                    shown="none", above=0)
-    max_capacitance: float | None = key("max_capacitance", "F", "vacuum: largest input (reservoir) capacitance "
+    max_capacitance: float | None = key("max_capacitance", "F", "largest input (reservoir) capacitance "
                                         "allowed", None, shown="none", above=0)
-    min_resistance: float | None = key("min_resistance", "ohm", "vacuum: smallest supply resistance per plate "
+    min_resistance: float | None = key("min_resistance", "ohm", "smallest supply resistance per plate "
                                        "allowed", None, shown="none", minimum=0)
 
     def model(self) -> DiodeModel:

@@ -183,7 +183,8 @@ class KeyedLoad(LoadBase):
         return sum(length - rise / 2 + fall / 2 for _, length in elements) / cycle
 
 
-def _read_steps(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> tuple[tuple[float, float], ...]:
+def _read_steps(rd: Reader, raw: Any, path: str,
+                table: Mapping[str, Any] | None = None) -> tuple[tuple[float, float], ...]:
     if not isinstance(raw, list) or not raw:
         raise rd.fail(path, 'expected a list of [time, current] pairs, e.g. [[0, "10m"], ["30", "90m"]]')
     out: list[tuple[float, float]] = []

@@ -80,7 +80,8 @@ class Rectifier:
     balancing: float | None = key("balancing", "ohm", "doubler and cascade: a balancing resistor across each stage "
                                   "capacitor", None, shown="none", above=0, maximum=1e12)
     balancing_rating: PartRating | None = key("balancing_rating", "table", 'power rating of each balancing '
-                                              'resistor, { w = "1" }', None, reader=rating_reader("r"), of=(PartRating,))
+                                              'resistor, { w = "1" }', None, reader=rating_reader("r"),
+                                              of=(PartRating,))
 
     @classmethod
     def refuse(cls, rd: Reader, t: Mapping[str, Any], path: str) -> None:

@@ -290,7 +290,8 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
                       "nothing to feed; add a [[filter]] c = ... reservoir or a [load]")
     if filters and filters[-1].kind in ("l", "r") and not any(ld.at is None for ld in loads) and bleeder is None:
         n = len(filters) - 1
-        raise rd.fail(f"filter.{n}", f"the filter ends in a series {'choke' if filters[-1].kind == 'l' else 'resistor'} "
+        what = "choke" if filters[-1].kind == "l" else "resistor"
+        raise rd.fail(f"filter.{n}", f"the filter ends in a series {what} "
                       "with nothing after it; add a [load], a [bleeder] or a final c section")
     return Design(title=title, source=source, rectifier=rectifier, filters=filters, loads=loads, bleeder=bleeder,
                   battery=battery, simulation=sim, spread=spread, checks=checks, regulator=regulator, note=note,

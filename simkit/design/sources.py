@@ -192,7 +192,8 @@ class TransformerSource:
         return 1.0 / self.frequency
 
 
-def read_efficiency_table(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> tuple[tuple[float, float], ...]:
+def read_efficiency_table(rd: Reader, raw: Any, path: str,
+                          table: Mapping[str, Any] | None = None) -> tuple[tuple[float, float], ...]:
     """``efficiency_table = [[fraction of rated power, efficiency], ...]``."""
     if not isinstance(raw, list) or len(raw) < 2:
         raise rd.fail(path, "expected a list of at least two [fraction of rated power, efficiency] pairs, "
@@ -271,7 +272,8 @@ class InverterSource:
                           f"{self.peak:g} V cannot reach that RMS")
         if self.efficiency is not None:
             if not 0 < self.efficiency <= 1:
-                raise rd.fail(f"{path}.efficiency", f"must be above 0% and at most 100%, got {self.efficiency * 100:g}%")
+                raise rd.fail(f"{path}.efficiency",
+                              f"must be above 0% and at most 100%, got {self.efficiency * 100:g}%")
             loss = self.rated_power / self.efficiency - self.rated_power
             if loss < self.idle_power:
                 raise rd.fail(f"{path}.idle_power", f"the idle power ({self.idle_power:g} W) exceeds the whole loss "

@@ -40,6 +40,9 @@ UNIT_WORDS: dict[str, str] = {
 #: Units a value is parsed in (the rest are read by type).
 _NUMERIC = ("V", "A", "ohm", "F", "H", "Hz", "s", "W", "Ah", "", "deg")
 
+#: Units that are physical quantities (shown beside numbers in labels and tables).
+QUANTITY_UNITS = ("V", "A", "ohm", "F", "H", "Hz", "s", "W", "Ah", "VA", "deg")
+
 
 @dataclass(frozen=True)
 class Key:

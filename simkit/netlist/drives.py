@@ -16,6 +16,7 @@ from dataclasses import dataclass
 
 from simkit.units import spice
 
+
 @dataclass(frozen=True)
 class Drive:
     """A piecewise-linear function of time since switch-on.

@@ -24,9 +24,10 @@ import math
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from simkit.design.vocab import value_rows
+from simkit.figures import FIGURES
 from simkit.report.document import Document
 from simkit.report.outputs import OutputDir
-from simkit.design.vocab import value_rows
 from simkit.report.text import show, unit_of
 from simkit.units import eng
 
@@ -330,10 +331,9 @@ def _input_rows(result: RunResult) -> list[list[str]]:
 
 
 def _figure_rows(result: RunResult) -> list[list[str]]:
-    from simkit.pipeline import FIGURES
-
     rows = []
-    for key, (_unit, meaning) in FIGURES.items():
+    for key, fig in FIGURES.items():
+        meaning = fig.meaning
         if key in result.metrics:
             rows.append([f"`{key}`", show(key, result.metrics[key]), meaning])
     for key, value in result.metrics.items():
@@ -346,22 +346,23 @@ def _part_tables(result: RunResult) -> list[tuple[str, list[str], list[list[str]
     tables = []
     placed: set[str] = set()
     groups = [*list(PART_GROUPS), ("Other parts", ())]
+    parts = {n: p.to_json() for n, p in result.parts.items()}  # the quantities each part has, as run --json
     for title, roles in groups:
-        names = [n for n, f in result.parts.items() if n not in placed and (not roles or _role_in(f, roles))]
+        names = [n for n, f in parts.items() if n not in placed and (not roles or _role_in(f, roles))]
         if not names:
             continue
         placed.update(names)
-        names.sort(key=lambda n: _role_rank(result.parts[n], roles))
+        names.sort(key=lambda n: _role_rank(parts[n], roles))
         keys: list[str] = []
         for n in names:
-            for k in result.parts[n]:
+            for k in parts[n]:
                 if k != "role" and k not in keys:
                     keys.append(k)
-        show_role = len({result.parts[n].get("role") for n in names}) > 1
+        show_role = len({parts[n].get("role") for n in names}) > 1
         headers = ["part", *(["what"] if show_role else []), *[PART_HEADERS.get(k, k) for k in keys]]
         rows = []
         for n in names:
-            f = result.parts[n]
+            f = parts[n]
             rows.append([n, *([str(f.get("role", ""))] if show_role else []), *[_cell(k, f.get(k)) for k in keys]])
         tables.append((title, headers, rows, ("ll" if show_role else "l") + "r" * len(keys)))
     return tables

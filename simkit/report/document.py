@@ -35,26 +35,11 @@ from dataclasses import dataclass, field
 
 from simkit import __version__
 from simkit.report.outputs import OutputDir
+from simkit.safety import CAUTION_POINTS
 
 #: The file names every document writes besides its images.
 MARKDOWN = "report.md"
 HTML = "report.html"
-
-#: The high-voltage cautions every report carries, one point each.
-CAUTION_POINTS: tuple[str, ...] = (
-    "These supplies can kill. The figures in this report are a simulation, not a guarantee "
-    "that a built supply is safe.",
-    "Stored charge: capacitors keep their charge after switch-off, sometimes for minutes. "
-    "Discharge every capacitor through a resistor, then measure, before touching.",
-    "Bleeders: fit one across the output, but never trust it alone; it can be open.",
-    "Insulation: insulate and enclose every live part; rate wiring, sockets and parts for the "
-    "voltage at high mains and at switch-on.",
-    "Fusing and earthing: fuse the supply (slow-blow, because of the switch-on surge) and earth "
-    "the chassis.",
-    "One hand rule: work with one hand in your pocket, on an insulated floor, and never alone.",
-    "Follow your local electrical codes, and have mains wiring done or checked by a licensed "
-    "person where the law requires it.",
-)
 
 _NAME = re.compile(r"^[a-z0-9][a-z0-9_-]{0,63}$")
 # Inline markup in trusted text: `code` and **bold**; nothing else is interpreted.

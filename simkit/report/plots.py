@@ -22,6 +22,8 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from simkit.pipeline.results import DiodeResult
+
 if TYPE_CHECKING:
     from simkit.pipeline import RunResult
 
@@ -262,8 +264,8 @@ def diode_currents_figure(result: RunResult) -> tuple[bytes, bytes]:
         for k, (ax, i) in enumerate(zip(axes, currents, strict=True)):
             ax.plot(t, i, color=PALETTE[1 + k % (len(PALETTE) - 1)])
             ax.set_ylim(low - 0.05 * (top - low), top * 1.18 if top > 0 else 1.0)
-            peak = result.parts[c.diodes[k].name]["peak_a"]
-            avg = result.parts[c.diodes[k].name]["avg_a"]
+            diode = result.part(c.diodes[k].name, DiodeResult)
+            peak, avg = diode.peak_a, diode.avg_a
             ax.text(0.995, 0.92, f"peak {eng(peak, 'A')}, mean {eng(avg, 'A')}", transform=ax.transAxes,
                     ha="right", va="top", fontsize=8.0, color=INK)
             title = f"Current in {_diode_label(result, k)}, anode to cathode" if k == 0 else _diode_label(result, k)
@@ -315,7 +317,7 @@ def switch_on_current_figure(result: RunResult) -> tuple[bytes, bytes]:
         for k, d in enumerate(c.diodes):
             ax.plot(s.time[sel], s.i(d.sense)[sel], color=PALETTE[1 + k % (len(PALETTE) - 1)], lw=1.1,
                     label=_diode_label(result, k))
-        worst = max(c.diodes, key=lambda d: result.parts[d.name]["surge_peak_a"])
+        worst = max(c.diodes, key=lambda d: result.part(d.name, DiodeResult).surge_peak_a)
         i_w = s.i(worst.sense)[sel]
         k = int(np.argmax(i_w))
         ax.annotate(f"{worst.name} peak {eng(float(i_w[k]), 'A')}", (float(s.time[sel][k]), float(i_w[k])),

@@ -1,55 +1,47 @@
-"""Human-readable text: the figures table of ``run``, the parts table, and the safety cautions."""
+"""Human-readable text: the figures table of ``run`` and the parts table, values with their units."""
 
 from __future__ import annotations
 
+import math
 from typing import TYPE_CHECKING, Any
 
+from simkit.figures import FIGURES
+from simkit.figures import unit_of as figure_unit
 from simkit.units import eng
 
 if TYPE_CHECKING:
     from simkit.pipeline import RunResult
 
-CAUTIONS = """\
-HIGH VOLTAGE: these supplies can kill.  The figures above are a simulation, not a
-guarantee.  Capacitors keep their charge after switch-off: discharge every capacitor
-through a resistor and measure before touching, and never trust a bleeder alone.
-Work one hand in your pocket, on an insulated floor.  Insulate and enclose every live
-part, fuse the supply (slow-blow, because of the switch-on surge) and earth the
-chassis.  Follow your local electrical codes, and have mains wiring done or checked by
-a licensed person where the law requires it."""
-
-_UNIT_OF_SUFFIX = {"_v": "V", "_a": "A", "_s": "s", "_w": "W", "_va": "VA", "_f": "F", "_ohm": "Ω",
-                   "_a2s": "A²s", "_hz": "Hz", "_pct": "%"}
-#: Figures whose unit takes no SI prefix when shown.
-_PLAIN = {"_h": "h", "_pct": "%", "efficiency": "", "_a2s": "A²s"}
+#: How a unit is written for people (prefixes are added by eng()).
+SYMBOLS = {"ohm": "Ω", "A2s": "A²s"}
+#: Units shown without an SI prefix: a prefix would mislead ((mA)²s, mh).
+_PLAIN = ("h", "%", "", "A2s", "dB")
 
 
 def unit_of(key: str) -> str:
-    if key == "value_h":
-        return "H"
-    for suffix in sorted(_UNIT_OF_SUFFIX, key=len, reverse=True):
-        if key.endswith(suffix):
-            return _UNIT_OF_SUFFIX[suffix]
-    return ""
+    """How a figure's or part quantity's unit is written (from :mod:`simkit.figures`)."""
+    u = figure_unit(key)
+    return SYMBOLS.get(u, u)
 
 
 def show(key: str, value: Any) -> str:
-    if isinstance(value, float):
-        if key != "value_h":
-            for suffix, unit in _PLAIN.items():  # a prefix would mislead ((mA)²s, mh): print plainly
-                if key.endswith(suffix):
-                    return f"{value:.4g} {unit}".strip() if value == value else "n/a"
-        return eng(value, unit_of(key))
-    return str(value)
+    """A figure's value with its unit, as tables show it ("n/a" for a figure not computed)."""
+    if isinstance(value, bool) or not isinstance(value, float | int):
+        return str(value)
+    if not math.isfinite(value):
+        return "n/a"
+    u = figure_unit(key)
+    if u in _PLAIN:
+        return f"{value:.4g} {SYMBOLS.get(u, u)}".strip()
+    return eng(float(value), SYMBOLS.get(u, u))
 
 
 def run_table(result: RunResult) -> str:
-    from simkit.pipeline import FIGURES
-
     d = result.design
     lines = [f"{d.title}", f"  design file: {d.origin}", ""]
     lines.append(f"  {'figure':<20} {'value':>12}   meaning")
-    for key, (_unit, meaning) in FIGURES.items():
+    for key, fig in FIGURES.items():
+        meaning = fig.meaning
         if key in result.metrics:
             lines.append(f"  {key:<20} {show(key, result.metrics[key]):>12}   {meaning}")
     extra = [k for k in result.metrics if k not in FIGURES]
@@ -57,9 +49,10 @@ def run_table(result: RunResult) -> str:
         lines.append(f"  {key:<20} {show(key, result.metrics[key]):>12}")
     lines.append("")
     lines.append("  per part (steady state unless marked switch-on):")
-    for name, fig in result.parts.items():
-        role = fig.get("role", "")
-        items = [f"{k}={show(k, v)}" for k, v in fig.items() if k != "role"]
+    for name, part in result.parts.items():
+        fields = part.to_json()
+        role = fields.pop("role", "")
+        items = [f"{k}={show(k, v)}" for k, v in fields.items()]
         lines.append(f"    {name:<7} {role}")
         lines.append(f"            {'  '.join(items)}")
     if result.warnings:

@@ -11,6 +11,9 @@ import math
 from collections.abc import Mapping, Sequence
 from typing import Any
 
+from simkit.design.model import Design
+from simkit.design.vocab import QUANTITY_UNITS, key_at
+from simkit.figures import FIGURES
 from simkit.sweep.specs import VarySpec, si_value
 from simkit.units import eng
 
@@ -19,16 +22,17 @@ LINE_COLOURS = ("#1f3b73", "#b5452b", "#3f7f4f", "#d98c1f", "#7a3b69", "#4b6e8f"
 MAX_LINES = 12
 
 
-#: Units of design keys by their last PATH part, for axis labels.
-_KEY_UNITS = {"c": "F", "capacitance": "F", "l": "H", "inductance": "H", "leakage_inductance": "H",
-              "r": "Ω", "esr": "Ω", "dcr": "Ω", "resistance": "Ω", "output_resistance": "Ω",
-              "i": "A", "rated_current": "A", "vrms": "V", "primary_vrms": "V", "secondary_vrms": "V",
-              "frequency": "Hz"}
+#: How a key's unit is written beside a number (the vocabulary's names where they differ).
+_SHOWN_UNITS = {"ohm": "Ω", "deg": "°"}
 
 
 def unit_of_path(path: str) -> str:
-    """The unit of a design key, from its last part (``filter.0.c`` -> ``F``); empty when unknown."""
-    return _KEY_UNITS.get(path.rsplit(".", 1)[-1], "")
+    """The unit of a design key, from the design vocabulary (``filter.0.c`` -> ``F``); empty when the
+    key is not a quantity (a count, a name) or not known."""
+    k = key_at(Design, path)
+    if k is None or k.unit not in QUANTITY_UNITS:
+        return ""
+    return _SHOWN_UNITS.get(k.unit, k.unit)
 
 
 def _numeric(v: Any) -> float | None:
@@ -47,7 +51,6 @@ def _label(path: str, v: Any) -> str:
 def sweep_figure_bytes(entries: Sequence[Mapping[str, Any]], specs: Sequence[VarySpec], figures: Sequence[str],
                        paired: bool, title: str, fmt: str = "png") -> bytes:
     """One panel per figure; x is the first --vary, lines are the values of the rest (or one line for --zip)."""
-    from simkit.pipeline import FIGURES
     from simkit.report.plots import _mpl
 
     plt, Eng = _mpl()
@@ -64,7 +67,7 @@ def sweep_figure_bytes(entries: Sequence[Mapping[str, Any]], specs: Sequence[Var
     fig, axes = plt.subplots(len(figures), 1, figsize=(8.0, 3.2 * len(figures) + 0.6), constrained_layout=True,
                              squeeze=False)
     for ax, figure in zip(axes[:, 0], figures, strict=True):
-        unit = FIGURES[figure][0]
+        unit = FIGURES[figure].unit
         for k, key in enumerate(keys):
             rows = groups[key]
             pts: list[tuple[float, float]] = []
@@ -79,7 +82,7 @@ def sweep_figure_bytes(entries: Sequence[Mapping[str, Any]], specs: Sequence[Var
             label = ", ".join(_label(s.path, v) for s, v in zip(others, key, strict=True)) or None
             ax.plot([p[0] for p in pts], [p[1] for p in pts], marker="o", ms=3.5, lw=1.4,
                     color=LINE_COLOURS[k % len(LINE_COLOURS)], label=label)
-        ax.set_title(f"{figure}: {FIGURES[figure][1]}", fontsize=10)
+        ax.set_title(f"{figure}: {FIGURES[figure].meaning}", fontsize=10)
         ax.yaxis.set_major_formatter(Eng(unit=unit if unit != "VA" else "VA"))
         if numeric_x:
             xunit = unit_of_path(first.path)
@@ -112,11 +115,10 @@ def sweep_figure_bytes(entries: Sequence[Mapping[str, Any]], specs: Sequence[Var
 def histogram_bytes(values: Sequence[float], figure: str, marks: Sequence[tuple[str, float]] = (),
                     fmt: str = "png") -> bytes:
     """A histogram of one figure over the runs of a spread, with labelled vertical marks (percentiles)."""
-    from simkit.pipeline import FIGURES
     from simkit.report.plots import _mpl
 
     plt, Eng = _mpl()
-    unit = FIGURES.get(figure, ("", ""))[0]
+    unit = (FIGURES[figure].unit if figure in FIGURES else "")
     fig, ax = plt.subplots(1, 1, figsize=(8.0, 3.2), constrained_layout=True)
     bins = max(5, min(40, int(math.sqrt(len(values))) + 1))
     ax.hist(list(values), bins=bins, color=LINE_COLOURS[5], edgecolor="white", linewidth=0.6)
@@ -125,7 +127,8 @@ def histogram_bytes(values: Sequence[float], figure: str, marks: Sequence[tuple[
     ax.xaxis.set_major_formatter(Eng(unit=unit))
     ax.set_xlabel(figure)
     ax.set_ylabel("runs")
-    ax.set_title(f"{figure}: {FIGURES.get(figure, ('', figure))[1]}, over {len(values)} runs", fontsize=10)
+    meaning = FIGURES[figure].meaning if figure in FIGURES else figure
+    ax.set_title(f"{figure}: {meaning}, over {len(values)} runs", fontsize=10)
     ax.grid(True, alpha=0.3)
     if marks:
         ax.legend(fontsize=8, loc="best")

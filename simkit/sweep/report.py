@@ -10,6 +10,7 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+from simkit.figures import FIGURES
 from simkit.report.outputs import OutputDir
 from simkit.sweep.specs import VarySpec
 from simkit.sweep.table import one_line
@@ -147,7 +148,6 @@ def _si(values: Sequence[Any]) -> list[Any]:
 def write_spread_report(out: OutputDir, entries: Sequence[Mapping[str, Any]], summary: Mapping[str, Any],
                         header: Mapping[str, Any], title: str, design_file: str | Path, total: int) -> list[str]:
     """Build and write the spread's report; returns the names written."""
-    from simkit.pipeline import FIGURES
     from simkit.report.document import Document
     from simkit.sweep.plot import histogram_bytes
 

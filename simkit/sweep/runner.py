@@ -22,6 +22,7 @@ from typing import Any, TextIO
 
 from simkit import __version__
 from simkit.errors import UsageError
+from simkit.figures import FIGURES
 from simkit.report.outputs import OutputDir
 from simkit.sweep import table
 from simkit.sweep.journal import Opened, open_journal
@@ -340,8 +341,6 @@ def _sweep_report_files() -> list[str]:
 
 
 def _check_plot(figures: Sequence[str]) -> None:
-    from simkit.pipeline import FIGURES
-
     bad = [f for f in figures if f not in FIGURES]
     if bad:
         raise UsageError(f"--plot {bad[0]}: not a figure; choose from {', '.join(FIGURES)}")

@@ -23,6 +23,7 @@ from typing import Any, TextIO
 
 from simkit.design.loader import apply_overrides, design_from_dict, read_toml
 from simkit.errors import DesignError, UsageError
+from simkit.figures import FIGURES
 from simkit.sweep.plot import unit_of_path
 from simkit.sweep.specs import override_text, parse_number
 from simkit.units import UNIT_SYMBOLS, UnitError, eng, parse_value
@@ -84,8 +85,6 @@ class SizeResult:
 
 def parse_target(text: str) -> Target:
     """Parse ``--target "ripple_pp_v<=2"`` (exit 2 on a mistake)."""
-    from simkit.pipeline import FIGURES
-
     m = _TARGET.match(text)
     if not m:
         raise UsageError(f"--target {text!r}: expected FIGURE<=VALUE, FIGURE>=VALUE or FIGURE=VALUE, "
@@ -93,7 +92,7 @@ def parse_target(text: str) -> Target:
     figure, op, raw = m.group(1), m.group(2), m.group(3)
     if figure not in FIGURES:
         raise UsageError(f"--target {text!r}: {figure!r} is not a figure; choose from {', '.join(FIGURES)}")
-    unit = FIGURES[figure][0]
+    unit = FIGURES[figure].unit
     try:
         value = parse_value(raw, unit if unit in UNIT_SYMBOLS else "")
     except UnitError as exc:
@@ -167,9 +166,7 @@ def run_size(design_file: str | Path, vary: str, target_text: str, overrides: Se
         simulate_fn = _simulate_metrics
     log = low > 0 and high / low >= 10.0
     evaluations: list[tuple[float, float]] = []
-    from simkit.pipeline import FIGURES
-
-    unit = FIGURES[target.figure][0]
+    unit = FIGURES[target.figure].unit
     xunit = unit_of_path(path)
     scale = max(abs(target.value), 1e-12)
 
@@ -232,9 +229,7 @@ def _simulate_metrics(design: Any) -> dict[str, float]:
 
 
 def summary_text(result: SizeResult) -> str:
-    from simkit.pipeline import FIGURES
-
-    unit = FIGURES[result.target.figure][0]
+    unit = FIGURES[result.target.figure].unit
     xunit = unit_of_path(result.path)
     verdict = "meets" if result.met else "does NOT meet"
     scale = "logarithmic" if result.log_scale else "linear"

@@ -30,6 +30,7 @@ import numpy as np
 
 from simkit.design.loader import apply_overrides, design_from_dict, read_toml
 from simkit.errors import DesignError, UsageError
+from simkit.figures import FIGURES
 from simkit.report.outputs import OutputDir
 from simkit.sweep.runner import RunOptions, RunReport, design_digest, execute, with_check
 from simkit.sweep.specs import MAX_POINTS, Point, override_text
@@ -212,7 +213,6 @@ def run_spread(design_file: str | Path, runs: int, seed: int, opts: RunOptions,
 
 def summary_table(report: RunReport) -> str:
     """The spread's percentiles and extremes as text (for stdout)."""
-    from simkit.pipeline import FIGURES
     from simkit.report.text import show
 
     summary = report.extra.get("summary", {})

@@ -17,6 +17,7 @@ from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
 from simkit import __version__
+from simkit.figures import FIGURES
 
 #: Prefix of the per-rule verdict columns (``check:D1 reverse voltage``).
 VERDICT_PREFIX = "check:"
@@ -24,8 +25,6 @@ VERDICT_PREFIX = "check:"
 
 def figure_columns(entries: Iterable[Mapping[str, Any]]) -> list[str]:
     """Figure keys of the rows: the figures table's order first, then any further keys in name order."""
-    from simkit.pipeline import FIGURES
-
     seen: set[str] = set()
     for e in entries:
         seen.update((e.get("metrics") or {}).keys())

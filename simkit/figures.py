@@ -1,0 +1,128 @@
+"""Every figure simkit reports, declared once: name, unit, meaning and the analysis that makes it.
+
+The run's figures (``metrics`` of ``run --json``, one number each) and the per-part quantities
+(``parts`` of ``run --json``) are both named here; the pipeline computes them, the checks, the
+reports, the sweeps and the user reference read this table.  A figure's name ends with its unit.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class Figure:
+    """One reported quantity."""
+
+    name: str  # as in run --json; ends with its unit
+    unit: str  # "V", "A", "W", "s", "h", "Hz", "VA", "A2s", "F", "H", "ohm", "%", "dB", or "" (a ratio)
+    meaning: str
+    analysis: str = "steady state"  # which run makes it
+
+
+def _table(*figures: Figure) -> dict[str, Figure]:
+    return {f.name: f for f in figures}
+
+
+_S, _ON, _BAT, _KEY, _REG = "steady state", "switch-on", "battery", "steady keying", "regulator"
+
+#: The run's figures, in the order tables print them.
+FIGURES: dict[str, Figure] = _table(
+    Figure("vout_dc_v", "V", "mean output voltage across the load"),
+    Figure("ripple_pp_v", "V", "peak-to-peak output ripple"),
+    Figure("ripple_rms_v", "V", "RMS of the output's AC part"),
+    Figure("iout_dc_a", "A", "mean load current"),
+    Figure("diode_peak_a", "A", "highest repetitive peak current in any rectifier diode"),
+    Figure("diode_avg_a", "A", "highest mean current of any rectifier diode"),
+    Figure("diode_rms_a", "A", "highest RMS current of any rectifier diode"),
+    Figure("diode_piv_v", "V", "highest reverse voltage across any rectifier diode"),
+    Figure("surge_peak_a", "A", "highest diode current after switch-on with empty capacitors", _ON),
+    Figure("cap_peak_v", "V", "highest voltage across any capacitor, switch-on included", _ON),
+    Figure("reservoir_ripple_a", "A", "RMS ripple current of the reservoir (highest stage) capacitor"),
+    Figure("source_rms_a", "A", "RMS winding current (each half for centre-tap)"),
+    Figure("source_va", "VA", "apparent power drawn from the winding(s)"),
+    Figure("settle_time_s", "s", "simulated time until steady state was declared (every span of the search)"),
+    # Start-up run (every design; the warm-up figures only when a load has a warmup).
+    Figure("rise_time_s", "s", "from switch-on until the output first reaches 90 % of vout_dc_v", _ON),
+    Figure("cap_peak_warmup_v", "V", "highest capacitor voltage before the loads draw current (heaters warming)",
+           _ON),
+    Figure("vout_warmup_v", "V", "highest output voltage before the loads draw current", _ON),
+    # Battery and inverter (with a [battery]).
+    Figure("battery_current_a", "A", "mean battery current in steady state", _BAT),
+    Figure("battery_peak_current_a", "A", "highest battery current in steady state", _BAT),
+    Figure("battery_voltage_v", "V", "mean battery terminal voltage under load", _BAT),
+    Figure("input_power_w", "W", "mean power drawn from the battery", _BAT),
+    Figure("output_power_w", "W", "mean power the inverter delivers", _BAT),
+    Figure("efficiency", "", "output_power_w / input_power_w", _BAT),
+    Figure("runtime_h", "h", "usable capacity / battery_current_a (no Peukert correction)", _BAT),
+    # Steady keying (a keyed load; the first one when there are several).
+    Figure("vout_keydown_v", "V", "mean output over the key-down intervals of a keying cycle", _KEY),
+    Figure("vout_keyup_v", "V", "mean output over the key-up intervals of a keying cycle", _KEY),
+    Figure("sag_v", "V", "vout_keyup_v - vout_keydown_v", _KEY),
+    Figure("sag_pct", "%", "sag_v as a percentage of vout_keyup_v", _KEY),
+    Figure("recovery_time_s", "s", "after the longest key-down edge, until the output stays within 1 % of "
+           "vout_keydown_v", _KEY),
+    Figure("overshoot_v", "V", "highest output after key-up above vout_keyup_v", _KEY),
+    Figure("ripple_keydown_pp_v", "V", "output ripple over the last period of the longest key-down interval", _KEY),
+    Figure("droop_v", "V", "fall of the output's one-period mean from the start to the end of the longest key-down",
+           _KEY),
+    Figure("keying_cycle_s", "s", "length of one keying cycle (one repetition of the Morse text)", _KEY),
+    Figure("chirp_hz", "Hz", "pushing_hz_per_v x the output's peak-to-peak change during a dot", _KEY),
+    Figure("battery_keydown_current_a", "A", "mean battery current while key-down, in steady keying", _KEY),
+    Figure("battery_keyup_current_a", "A", "mean battery current while key-up, in steady keying", _KEY),
+    Figure("runtime_keyed_h", "h", "usable capacity / mean battery current at the keying duty", _KEY),
+    # Regulator (with a [regulator]).
+    Figure("reg_vin_v", "V", "mean regulator input (the filter's output)", _REG),
+    Figure("reg_vout_v", "V", "mean regulated output", _REG),
+    Figure("reg_headroom_min_v", "V", "lowest input minus output over the analysed span (steady state and keying)",
+           _REG),
+    Figure("reg_dissipation_w", "W", "mean dissipation of the pass device or shunt element", _REG),
+    Figure("reg_dissipation_peak_w", "W", "highest dissipation of the pass device or shunt element", _REG),
+    Figure("shunt_current_min_a", "A", "lowest shunt current over the analysed span", _REG),
+    Figure("shunt_current_max_a", "A", "highest shunt current over the analysed span", _REG),
+    Figure("load_regulation_pct", "%", "output change from the light load to the design load, % of the output",
+           _REG),
+    Figure("line_regulation_pct", "%", "output change over the mains range (+- tolerance, or +-10 %), % of the "
+           "output", _REG),
+    Figure("line_input_change_pct", "%", "the regulator input's change over the same range, for comparison", _REG),
+    Figure("ripple_rejection_db", "dB", "20 log10 of input ripple over output ripple (peak-to-peak)", _REG),
+)
+
+#: Per-part quantities (``parts`` of ``run --json``): each part holds the ones that apply to it.
+PART_FIGURES: dict[str, Figure] = _table(
+    Figure("peak_a", "A", "highest current"),
+    Figure("avg_a", "A", "mean current"),
+    Figure("rms_a", "A", "RMS current"),
+    Figure("dc_a", "A", "mean current"),
+    Figure("piv_v", "V", "highest reverse voltage"),
+    Figure("surge_peak_a", "A", "highest current after switch-on", _ON),
+    Figure("surge_i2t_a2s", "A2s", "I2t over the half period around the switch-on peak", _ON),
+    Figure("switch_on_piv_v", "V", "highest reverse voltage during switch-on", _ON),
+    Figure("value_f", "F", "capacitance"),
+    Figure("value_h", "H", "inductance"),
+    Figure("value_ohm", "ohm", "resistance"),
+    Figure("peak_v", "V", "highest voltage (switch-on included)"),
+    Figure("dc_v", "V", "mean voltage"),
+    Figure("ripple_pp_v", "V", "peak-to-peak voltage ripple"),
+    Figure("ripple_rms_a", "A", "RMS ripple current"),
+    Figure("switch_on_peak_v", "V", "highest voltage during switch-on", _ON),
+    Figure("switch_on_peak_a", "A", "highest current during switch-on", _ON),
+    Figure("esr_dissipation_w", "W", "dissipation in the ESR"),
+    Figure("dcr_dissipation_w", "W", "dissipation in the winding resistance"),
+    Figure("dissipation_w", "W", "mean dissipation"),
+    Figure("dissipation_peak_w", "W", "highest dissipation"),
+    Figure("switch_on_dissipation_peak_w", "W", "highest dissipation during switch-on", _ON),
+    Figure("vrms_v", "V", "open-circuit RMS voltage"),
+    Figure("apparent_power_va", "VA", "apparent power"),
+    Figure("vds_max_v", "V", "highest drain-source voltage"),
+    Figure("id_max_a", "A", "highest drain current"),
+    Figure("current_min_a", "A", "lowest current"),
+    Figure("current_max_a", "A", "highest current"),
+    Figure("switch_on_voltage_max_v", "V", "highest voltage across it during switch-on", _ON),
+)
+
+
+def unit_of(name: str) -> str:
+    """The unit of a figure or per-part quantity ("" when unknown or a ratio)."""
+    f = FIGURES.get(name) or PART_FIGURES.get(name)
+    return f.unit if f is not None else ""

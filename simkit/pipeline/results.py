@@ -1,0 +1,155 @@
+"""What a run of one design gives: its figures, and per part the quantities the checks and reports read.
+
+Per-part results are typed (:class:`DiodeResult`, :class:`CapacitorResult`, ...): code reads
+their attributes; ``to_json`` gives the ``parts`` of ``run --json``, keyed by the quantities of
+:data:`simkit.figures.PART_FIGURES`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, field
+from typing import Any, TypeVar
+
+from simkit import __version__
+from simkit.analysis.keyed import KeyedRun
+from simkit.analysis.runs import Run
+from simkit.analysis.steady import SteadyState
+from simkit.design.model import Design
+from simkit.design.reader import design_to_inputs
+from simkit.netlist.circuit import Circuit
+
+
+@dataclass
+class PartResult:
+    """What every part's result says: what the part is."""
+
+    role: str
+
+    def to_json(self) -> dict[str, Any]:
+        return {k: _clean(v) for k, v in asdict(self).items() if v is not None}
+
+
+@dataclass
+class DiodeResult(PartResult):
+    peak_a: float
+    avg_a: float
+    rms_a: float
+    piv_v: float
+    surge_peak_a: float
+    surge_i2t_a2s: float
+    switch_on_piv_v: float
+
+
+@dataclass
+class CapacitorResult(PartResult):
+    value_f: float
+    peak_v: float
+    dc_v: float
+    ripple_pp_v: float
+    ripple_rms_a: float
+    switch_on_peak_v: float
+    esr_dissipation_w: float | None = None
+
+
+@dataclass
+class InductorResult(PartResult):
+    value_h: float
+    dc_a: float
+    rms_a: float
+    peak_a: float
+    switch_on_peak_a: float
+    dcr_dissipation_w: float | None = None
+
+
+@dataclass
+class ResistorResult(PartResult):
+    value_ohm: float
+    dissipation_w: float
+    dc_a: float
+    rms_a: float
+    peak_v: float
+
+
+@dataclass
+class LoadResult(PartResult):
+    node: str
+    dc_v: float
+    dc_a: float
+    dissipation_w: float
+    value_ohm: float | None = None
+
+
+@dataclass
+class WindingResult(PartResult):
+    vrms_v: float
+    rms_a: float
+    peak_a: float
+    apparent_power_va: float
+    surge_peak_a: float
+
+
+@dataclass
+class RegulatorResult(PartResult):
+    dissipation_w: float
+    dissipation_peak_w: float
+    vds_max_v: float | None = None  # series pass device
+    id_max_a: float | None = None
+    switch_on_dissipation_peak_w: float | None = None
+    current_min_a: float | None = None  # shunt element
+    current_max_a: float | None = None
+    switch_on_voltage_max_v: float | None = None
+    struck: bool | None = None  # glow tubes: did they strike at switch-on
+
+
+P = TypeVar("P", bound=PartResult)
+
+
+@dataclass
+class RunResult:
+    """One design simulated: figures (``metrics``), per-part results, warnings, and the runs behind them."""
+
+    design: Design
+    circuit: Circuit
+    metrics: dict[str, float]
+    parts: dict[str, PartResult]
+    warnings: list[str]
+    steady: SteadyState
+    start: Run
+    window: tuple[float, float] = (0.0, 0.0)
+    keyed: KeyedRun | None = None
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    def part(self, name: str, kind: type[P]) -> P:
+        """One part's result, of the kind asked for (a KeyError when there is no such part)."""
+        p = self.parts[name]
+        if not isinstance(p, kind):
+            raise KeyError(f"{name} is a {type(p).__name__}, not a {kind.__name__}")
+        return p
+
+    def of_kind(self, kind: type[P]) -> dict[str, P]:
+        """Every part of one kind, by name."""
+        return {k: v for k, v in self.parts.items() if isinstance(v, kind)}
+
+    def to_json(self) -> dict[str, Any]:
+        return {
+            "simkit": __version__,
+            "design": self.design.title,
+            "inputs": design_to_inputs(self.design),
+            "metrics": {k: _clean(v) for k, v in self.metrics.items()},
+            "parts": {k: v.to_json() for k, v in self.parts.items()},
+            "warnings": list(self.warnings),
+        }
+
+    @property
+    def deck(self) -> str:
+        """The steady-state deck with its .meas lines, as ``simkit netlist`` prints it."""
+        from simkit.pipeline.decks import steady_deck  # decks reads results, not the other way round
+
+        return steady_deck(self)
+
+
+def _clean(v: Any) -> Any:
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    return v
