@@ -44,10 +44,6 @@ SECTIONS: tuple[str, ...] = ("Summary", "Schematic", "Inputs", "Figures", "Parts
 #: Helper elements simkit adds for the numerics, by name prefix: what they are.
 HELPER_NOTES: tuple[tuple[str, str], ...] = (
     ("RT", "10 MΩ ties from floating winding terminals to the return"),
-    ("CSW", "snubber across a winding with leakage inductance"),
-    ("RSW", "snubber across a winding with leakage inductance"),
-    ("CSR", "snubber at the input of a choke-input filter"),
-    ("RSR", "snubber at the input of a choke-input filter"),
     ("VD", "0 V current senses of the diodes"),
     ("VC", "0 V current senses of the capacitors"),
     ("VLOAD", "0 V current sense of the load"),
