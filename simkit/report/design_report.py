@@ -198,8 +198,10 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
         doc.paragraph("The load keyed as the design says, after the keying settled"
                       + (f" (keying cycle {eng(cycle, 's')})" if cycle else "") + ": output voltage, and the "
                       "current each load draws. " + _keyed_note(result))
-        png, svg = plots.run_timeline_figure(result, keyed_waves, "Keyed load")
-        doc.image("keyed", png, svg, "Output voltage and load current while the load is keyed")
+        png, svg = plots.keyed_figure(result) if getattr(keyed, "window", None) is not None else \
+            plots.run_timeline_figure(result, keyed_waves, "Keyed load")
+        doc.image("keyed", png, svg, "Output voltage while the load is keyed: over one keying cycle (the one-period "
+                  "mean over the raw trace, key-down shaded), then the longest key-down and its edges close up")
     if getattr(d, "has_timeline", False):
         doc.heading("Start-up timeline", 3)
         doc.paragraph("From switch-on with every capacitor empty, with the heater warm-ups and load steps of the "
