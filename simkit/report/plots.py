@@ -178,7 +178,11 @@ def _unit_formatter() -> type:
         def set_locs(self, locs: Any) -> None:
             super().set_locs(locs)
             lo, hi = self.axis.get_view_interval()
-            self.scale, symbol = prefix_of(max(abs(lo), abs(hi)), self.unit)
+            size = max(abs(lo), abs(hi))
+            inside = [abs(float(x)) for x in locs if lo - 1e-12 <= x <= hi + 1e-12 and x != 0]
+            if self.axis.get_scale() == "log" and inside:  # decades apart: the prefix of the middle one
+                size = math.exp(sum(math.log(x) for x in inside) / len(inside))
+            self.scale, symbol = prefix_of(size, self.unit)
             shown = [float(x) / self.scale for x in locs if lo - 1e-12 <= x <= hi + 1e-12]
             size = max((abs(x) for x in shown), default=1.0) or 1.0
             # The fewest decimals that write every tick exactly (2.5 is not "2").
