@@ -57,8 +57,9 @@ results/
 File names are fixed, so documents can link to them, and running `simkit demo` again
 writes the same files.  The demo ends with one line per example: its `simkit check` verdict
 (pass, marginal or fail, with how many rules gave each) and the path of its report.html.
-`simkit report DESIGN --out DIR` writes the same report for your own design.  The examples' decks are also kept as golden files in `netlists/` (`make
-netlists`), where a test checks that they are current.
+`simkit report DESIGN --out DIR` writes the same report for your own design.  The examples'
+decks are also kept as golden files in `netlists/` (`make netlists`), where a test checks
+that they are current.
 
 `.simkit-manifest.json` lists the files simkit wrote, so it never overwrites anything else.
 
