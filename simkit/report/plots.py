@@ -25,6 +25,7 @@ for every report; the ``*_figure`` functions draw one design's waveforms.
 from __future__ import annotations
 
 import io
+import itertools
 import math
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
@@ -55,6 +56,8 @@ COLOURS = {"out": PALETTE[0], "rect": "#6f8fbf", "diodes": PALETTE[1:7], "start"
 #: The least height of a level plot's y-axis, as a share of the largest value's size: a change
 #: of 0.05 % then fills a hundredth of the axis, a change of 5 % all of it (our house style).
 MIN_SPAN = 0.05
+#: A ripple smaller than this share of its mean is plotted as the change from the mean.
+SMALL_RIPPLE = 1e-3
 #: Traces closer than this share of the plot's largest value everywhere are drawn as one (about a
 #: line's width on a 3 in tall panel).
 SAME_TRACE = 0.005
@@ -183,10 +186,11 @@ def _unit_formatter() -> type:
             if self.axis.get_scale() == "log" and inside:  # decades apart: the prefix of the middle one
                 size = math.exp(sum(math.log(x) for x in inside) / len(inside))
             self.scale, symbol = prefix_of(size, self.unit)
-            shown = [float(x) / self.scale for x in locs if lo - 1e-12 <= x <= hi + 1e-12]
-            size = max((abs(x) for x in shown), default=1.0) or 1.0
-            # The fewest decimals that write every tick exactly (2.5 is not "2").
-            self.decimals = next((d for d in range(7) if all(abs(round(x, d) - x) <= 1e-6 * size for x in shown)), 6)
+            shown = sorted(float(x) / self.scale for x in locs if lo - 1e-12 <= x <= hi + 1e-12)
+            gaps = [b - a for a, b in itertools.pairwise(shown) if b > a]
+            step = min(gaps, default=max((abs(x) for x in shown), default=1.0) or 1.0)
+            # The fewest decimals that write every tick exactly (2.5 is not "2"; 555.98302 is not 555.983).
+            self.decimals = next((d for d in range(10) if all(abs(round(x, d) - x) <= 1e-3 * step for x in shown)), 9)
             unit = f"{symbol}{self.unit}"
             self.axis.set_label_text(f"{self.quantity} ({unit})" if unit else self.quantity)
 
@@ -249,10 +253,19 @@ def level_limits(ax: Any, values: Sequence[float] | np.ndarray, headroom: float 
     return lo, hi
 
 
+def percent(p: float) -> str:
+    """A share for people: ``0.05 %``, ``3.4 %``, ``under 0.001 %`` (never ``2.5e-05 %``)."""
+    if not math.isfinite(p):
+        return "n/a"
+    if abs(p) < 0.001:
+        return "under 0.001 %" if p else "0 %"
+    return f"{float(f'{p:.2g}'):g} %"
+
+
 def change_text(lo: float, hi: float, unit: str, what: str = "change") -> str:
     """``change 150 mV (0.05 % of 300 V)``: a level's spread in its unit and as a share of its size."""
     size = max(abs(lo), abs(hi))
-    share = f" ({100 * (hi - lo) / size:.2g} % of {eng(size, unit)})" if size > 0 else ""
+    share = f" ({percent(100 * (hi - lo) / size)} of {eng(size, unit)})" if size > 0 else ""
     return f"{what} {eng(hi - lo, unit)}{share}"
 
 
@@ -428,15 +441,19 @@ def output_steady_figure(result: RunResult) -> tuple[bytes, bytes]:
             v = w.v(node)[sel]
             mean = float(np.mean(v)) if node != c.output else result.metrics["vout_dc_v"]
             lo, hi = float(np.min(v)), float(np.max(v))
-            ax.plot(t, v, color=PALETTE[0 if k == 0 else 5])
-            ax.axhline(mean, color=MUTED, lw=0.9, ls="--")
+            what = "Output voltage" if node == c.output else "Rectifier output voltage"
+            # A ripple under a thousandth of the level is shown as the change from the mean: ticks
+            # of 555.98302 V read worse than ticks of 20 µV.
+            offset = mean if hi - lo < SMALL_RIPPLE * abs(mean) else 0.0
+            ax.plot(t, v - offset, color=PALETTE[0 if k == 0 else 5])
+            ax.axhline(mean - offset, color=MUTED, lw=0.9, ls="--")
             span = max(hi - lo, 1e-9 * max(abs(hi), 1.0))
-            ax.set_ylim(lo - 0.08 * span, hi + 0.42 * span)  # headroom for the note
-            share = f" ({100 * (hi - lo) / abs(mean):.2g} % of the mean)" if mean else ""
+            ax.set_ylim(lo - offset - 0.08 * span, hi - offset + 0.42 * span)  # headroom for the note
+            share = f" ({percent(100 * (hi - lo) / abs(mean))} of the mean)" if mean else ""
             note(ax, f"mean {eng(mean, 'V')} (dashed); ripple {eng(hi - lo, 'V')} peak to peak{share}; "
                      "the axis zooms on the ripple")
-            what = "Output voltage" if node == c.output else "Rectifier output voltage"
-            style_axes(ax, f"{what} in steady state ({_where(result, node)})", "", "", what.lower(), "V")
+            quantity = what.lower() if not offset else f"{what.lower()} minus its mean {eng(mean, 'V')}"
+            style_axes(ax, f"{what} in steady state ({_where(result, node)})", "", "", quantity, "V")
         unit_axis(axes[-1].xaxis, _window_label(result), "s")
         return figure_bytes(fig)
 
@@ -501,8 +518,10 @@ def switch_on_voltage_figure(result: RunResult) -> tuple[bytes, bytes]:
         ax.axhline(steady, color=MUTED, lw=0.9, ls="--", label=f"steady-state mean\noutput {eng(steady, 'V')}")
         peak_v = float(np.max(s.v(c.output)))
         k = int(np.argmax(s.v(c.output)))
-        ax.annotate(f"highest {eng(peak_v, 'V')}", (float(s.time[k]), peak_v), xytext=(0, 8),
-                    textcoords="offset points", ha="center", fontsize=8.0, color=INK)
+        where = float(s.time[k]) / float(s.time[-1])  # keep the note inside the plotting area
+        ax.annotate(f"highest {eng(peak_v, 'V')}", (float(s.time[k]), peak_v), xytext=(0, -14 if where > 0.66 else 8),
+                    textcoords="offset points", ha="right" if where > 0.66 else "left" if where < 0.2 else "center",
+                    fontsize=8.0, color=INK)
         everything = [s.v(c.output)] + ([s.v(c.rectified)] if c.rectified != c.output else [])
         top = max(float(np.max(v)) for v in everything)
         ax.set_ylim(bottom=min(0.0, float(np.min(s.v(c.output)))), top=max(top, steady) * 1.15)
@@ -657,7 +676,7 @@ def keyed_figure(result: RunResult) -> tuple[bytes, bytes]:
         parts = [f"{word} {eng(m[key], 'V')}" for key, word in (("vout_keydown_v", "key-down mean"),
                                                                   ("vout_keyup_v", "key-up mean")) if key in m]
         if "sag_v" in m:
-            parts.append(f"sag {eng(m['sag_v'], 'V')}" + (f" ({m['sag_pct']:.2g} %)" if "sag_pct" in m else ""))
+            parts.append(f"sag {eng(m['sag_v'], 'V')}" + (f" ({percent(m['sag_pct'])})" if "sag_pct" in m else ""))
         note(ax, "; ".join(parts) if parts else change_text(lo, hi, "V"))
         style_axes(ax, f"Keyed load: output voltage over one keying cycle ({_where(result, circuit.output)})",
                    "time from the start of the keying cycle", "s", "output voltage", "V")
