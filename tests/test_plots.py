@@ -24,7 +24,7 @@ from simkit.sweep.specs import parse_vary
 EXAMPLES = Path(__file__).resolve().parents[1] / "simkit" / "examples"
 
 #: An axis label in words with a unit in brackets, the unit carrying at most one SI prefix.
-LABEL = re.compile(r"^[a-z][A-Za-z0-9 ,.:()\-]*[a-z)] \((G|M|k|m|µ|n|p)?(V|A|s|W|VA|Hz|F|H|Ω)\)$")
+LABEL = re.compile(r"^[a-z][A-Za-z0-9 ,.:()\-]*[A-Za-z)] \((G|M|k|m|µ|n|p)?(V|A|s|W|VA|Hz|F|H|Ω)\)$")
 #: Words of the simulator, not of the builder, that an axis label must not show.
 INTERNAL = ("node 0", "to node", "_v", "_a", "vout")
 
