@@ -410,6 +410,9 @@ def _node_parts(result: RunResult, node: str) -> list[str]:
     names = [x.name for x in c.capacitors if x.is_part and x.plus == node and x.minus == "0"]
     names += [r.name for r in c.resistors if r.role == "bleeder" and r.a == node and r.b == "0"]
     names += [ld.name for ld in c.loads if ld.node == node]
+    reg = getattr(result.design, "regulator", None)
+    if reg is not None and reg.kind == "shunt" and node == c.output:
+        names.insert(0, "DZ" if reg.zener is not None else "GLOW")
     return names
 
 
@@ -582,7 +585,8 @@ def run_timeline_figure(result: RunResult, w: Any, what: str) -> tuple[bytes, by
                 axes[1].plot(t, w.i(sense), color=PALETTE[1 + k % (len(PALETTE) - 1)], label=name)
             style_axes(axes[1], f"{what}: current into each load", "", "", "load current", "A")
             legend_outside(axes[1])
-        unit_axis(axes[-1].xaxis, "time from the start of the run" if w.time[0] > 0 else "time after switch-on", "s")
+        start = "time after switch-on" if w is result.start.waves else "time from the start of the run"
+        unit_axis(axes[-1].xaxis, start, "s")
         return figure_bytes(fig)
 
 
