@@ -47,6 +47,13 @@ HELPER_NOTES: tuple[tuple[str, str], ...] = (
     ("VD", "0 V current senses of the diodes"),
     ("VC", "0 V current senses of the capacitors"),
     ("VLOAD", "0 V current sense of the load"),
+    ("VPASS", "0 V current sense of the pass device"),
+    ("VSHUNT", "0 V current sense of the shunt element"),
+    ("SGLOW", "the glow tubes' strike model (drawn as GLOW)"),
+    ("BGLOW", "the glow tubes' strike model (drawn as GLOW)"),
+    ("RGLOW", "the glow tubes' strike model (drawn as GLOW)"),
+    ("RGLC", "the glow tubes' strike model (drawn as GLOW)"),
+    ("CGLC", "the glow tubes' strike model (drawn as GLOW)"),
     ("RESR", "capacitor ESR (shown in the capacitor's label)"),
     ("RDCR", "choke winding resistance (shown in the choke's label)"),
 )
