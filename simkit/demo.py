@@ -7,6 +7,7 @@ import json
 from collections.abc import Callable
 from importlib import resources
 from pathlib import Path
+from typing import Any
 
 from simkit.design.loader import load_design
 from simkit.pipeline import simulate
@@ -38,6 +39,8 @@ results/
     diode-currents.png/.svg        current pulses in each rectifier diode
     switch-on-voltage.png/.svg     output voltage after switch-on, capacitors empty
     switch-on-surge.png/.svg       diode currents in the first periods after switch-on
+    keyed.png/.svg                 a keyed load: the output over one keying cycle and the
+                                   longest key-down close up (designs that key their load)
     deck.cir                       the steady-state SPICE deck (`simkit netlist`)
     design.toml                    the example design file, as shipped in the package
     result.json                    `simkit run --json`: inputs, figures, per-part figures, warnings
@@ -50,12 +53,14 @@ results/
 | `report.md` | for build notes and wikis: links `NAME.png` (and `NAME.svg` for print) beside it |
 | `*.png` / `*.svg` | every picture in both formats: PNG for documents and screens, SVG for print |
 | `deck.cir` | runnable as it is: `ngspice -b deck.cir` prints the figures as `.meas` results |
-| `result.json` | the figures of docs/reference.md (Figures), keyed as `simkit run --json` prints them |
+| `result.json` | the figures (docs/reference.md, Figures), keyed as `simkit run --json` prints them |
 
 File names are fixed, so documents can link to them, and running `simkit demo` again
-writes the same files.  `simkit report DESIGN --out DIR` writes the same report for your
-own design.  The examples' decks are also kept as golden files in `netlists/` (`make
-netlists`), where a test checks that they are current.
+writes the same files.  The demo ends with one line per example: its `simkit check` verdict
+(pass, marginal or fail, with how many rules gave each) and the path of its report.html.
+`simkit report DESIGN --out DIR` writes the same report for your own design.  The examples'
+decks are also kept as golden files in `netlists/` (`make netlists`), where a test checks
+that they are current.
 
 `.simkit-manifest.json` lists the files simkit wrote, so it never overwrites anything else.
 
@@ -87,6 +92,7 @@ def _run_demo(files: list[Path], top: OutputDir, folders: dict[Path, OutputDir],
     from simkit.report.plots import run_figure_bytes
 
     docs = []
+    endings = []
     top.write("README.md", RESULTS_README)
     for f in files:
         design = load_design(f)
@@ -105,6 +111,19 @@ def _run_demo(files: list[Path], top: OutputDir, folders: dict[Path, OutputDir],
         for w in result.warnings:
             echo(f"     warning: {w}")
         docs.append(doc)
+        endings.append(verdict_line(design.title, checks, check_error, folder.path / "report.html"))
     echo("")
     echo(CAUTIONS)
+    echo("")
+    echo("Reports (the verdict is `simkit check`'s: every part against its rating at its worst corner):")
+    for line in endings:
+        echo(line)
     return docs
+
+
+def verdict_line(title: str, checks: Any, check_error: str, report: Path) -> str:
+    """``TITLE: fail (1 fail, 2 marginal, 14 pass) -> results/x/report.html``, or why it was not checked."""
+    if checks is None:
+        return f"  {title}: not checked ({check_error}) -> {report}"
+    s = checks.summary()
+    return f"  {title}: {s['result']} ({s['fail']} fail, {s['marginal']} marginal, {s['pass']} pass) -> {report}"

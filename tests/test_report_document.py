@@ -138,7 +138,7 @@ def test_schematic_draws_one_symbol_per_part(tmp_path: Path, name: str) -> None:
     assert sorted(sch.drawn) == sorted(wanted)  # each part exactly once
     assert len(set(sch.drawn)) == len(sch.drawn) and not sch.not_drawn
     # Helpers added for the numerics are not parts: never drawn.
-    assert not [n for n in sch.drawn if n.startswith(("RT", "CSW", "RSW", "CSR", "RSR", "VD", "VC", "VLOAD"))]
+    assert not [n for n in sch.drawn if n.startswith(("RT", "VD", "VC", "VLOAD"))]
     assert sch.png.startswith(b"\x89PNG\r\n\x1a\n")
     ET.fromstring(sch.svg)  # well-formed SVG (its text is drawn as outlines, so it prints without our fonts)
     # Every symbol is labelled with its name and a value in engineering notation.

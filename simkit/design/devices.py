@@ -121,7 +121,7 @@ class InlineVacuum:
     dc_current: float | None = key("dc_current", "A", "rated DC output current, for checks", None,
                                    shown="none", above=0)
     max_capacitance: float | None = key("max_capacitance", "F", "largest input (reservoir) capacitance "
-                                        "allowed", None, shown="none", above=0)
+                                        "allowed", None, shown="none", above=0, label="largest input capacitance")
     min_resistance: float | None = key("min_resistance", "ohm", "smallest supply resistance per plate "
                                        "allowed", None, shown="none", minimum=0)
 
@@ -191,11 +191,12 @@ class Zener:
     """A zener diode (or a string of ``count`` equal ones): ``zener = { voltage = "75", count = 2 }``."""
 
     voltage: float = key("voltage", "V", "each zener", required=True, need="the voltage of each zener",
-                         above=0, maximum=1000)
-    count: int = key("count", "int", "in series", 1, shown="1", minimum=1, maximum=50)
+                         above=0, maximum=1000, label="zener voltage")
+    count: int = key("count", "int", "in series", 1, shown="1", minimum=1, maximum=50, label="zeners in series")
     resistance: float = key("resistance", "ohm", "dynamic resistance each", 0.0,
-                            shown="voltage / 20 (at least 1)", above=0, maximum=1e5)
-    power: float | None = key("power", "W", "rating each", None, shown="none", above=0, maximum=1e3)
+                            shown="voltage / 20 (at least 1)", above=0, maximum=1e5, label="zener dynamic resistance")
+    power: float | None = key("power", "W", "rating each", None, shown="none", above=0, maximum=1e3,
+                              label="zener power rating")
 
 
 def read_zener(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> Zener:

@@ -110,12 +110,12 @@ class FilterSection:
     """One ``[[filter]]`` section, from the rectifier towards the load: a shunt c, a series l or a series r."""
 
     c: float | None = key("c", "F", "shunt capacitor to the return; a first c is the reservoir", None, above=0,
-                          minimum=MIN_CAPACITANCE, maximum=10.0)
+                          minimum=MIN_CAPACITANCE, maximum=10.0, label="capacitance")
     esr: float = key("esr", "ohm", "equivalent series resistance of c", 0.0, shown="0", minimum=0, maximum=1e6)
     l: float | None = key("l", "H", "series choke; a first l makes a choke-input filter", None, above=0,  # noqa: E741
-                          maximum=1e4)
+                          maximum=1e4, label="inductance")
     dcr: float = key("dcr", "ohm", "winding resistance of l", 0.0, shown="0", minimum=0, maximum=1e9)
-    r: float | None = key("r", "ohm", "series resistor", None, above=0, maximum=1e12)
+    r: float | None = key("r", "ohm", "series resistor", None, above=0, maximum=1e12, label="resistance")
     tolerance: float | None = key("tolerance", "%", "tolerance of the section's c, l or r value, for "
                                   "`simkit spread`", None, shown="none")
     part: str | None = key("part", "str", "a part of the library file: its ratings (and esr or dcr, unless given "
@@ -154,7 +154,7 @@ class Bleeder:
     """``[bleeder]``: a resistor across the output that empties the capacitors after switch-off."""
 
     r: float = key("r", "ohm", "bleeder resistance across the output", required=True,
-                   need="the bleeder resistance, e.g. r = \"220k\"", above=0, maximum=1e12)
+                   need="the bleeder resistance, e.g. r = \"220k\"", above=0, maximum=1e12, label="bleeder resistance")
     tolerance: float | None = key("tolerance", "%", "tolerance of r, for `simkit spread`", None, shown="none")
     part: str | None = key("part", "str", "a resistor of the library file (its power rating)", None)
     rating: PartRating | None = key("rating", "table", 'power rating, { w = "2" }, for `simkit check`', None,
@@ -307,7 +307,7 @@ class SimulationOptions:
                                        "period)", None, shown="automatic", minimum=50, maximum=100000)
     settle_tolerance: float = key("settle_tolerance", "", "how close to the periodic state counts as settled: the "
                                   "distance the slow modes would still move each state variable, relative to its "
-                                  "scale", 1e-4, shown="1e-4", above=0, maximum=0.1)
+                                  "scale", 1e-4, shown="1e-4", above=0, maximum=0.1, label="settle tolerance")
     max_settle_time: float | None = key("max_settle_time", "s", "give up looking for the steady state after this "
                                         "much simulated time", None, shown="400 periods", above=0, maximum=3600)
     switch_on_time: float | None = key("switch_on_time", "s", "length of the switch-on run", None,
@@ -315,7 +315,7 @@ class SimulationOptions:
     reltol: float = key("reltol", "", "ngspice relative tolerance", 1e-5, shown="1e-5", minimum=1e-8, maximum=1e-2)
     max_points: float = key("max_points", "", "refuse to simulate when the estimated time points of all analyses "
                             "exceed this (about a minute of simulation per 2e7 on a typical PC)", 2e7, shown="2e7",
-                            minimum=1e4, maximum=1e10)
+                            minimum=1e4, maximum=1e10, label="time-point limit")
 
     def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
         if not math.isfinite(self.switch_on_phase):

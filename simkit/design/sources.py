@@ -31,7 +31,7 @@ def _frequency() -> Any:
 
 def _tolerance() -> Any:
     return key("mains_tolerance", "%", "supply range, +- this fraction, for corner checks and `run --mains`", None,
-               shown="none")
+               shown="none", label="mains tolerance")
 
 
 @dataclass(frozen=True)
@@ -45,7 +45,8 @@ class SineSource:
     frequency: float = _frequency()
     resistance: float = key("resistance", "ohm", "series resistance of the winding plus the primary referred to "
                             "the secondary (each half for centre-tap)", required=True,
-                            need='the series resistance of the winding, e.g. "25"', minimum=0, maximum=1e9)
+                            need='the series resistance of the winding, e.g. "25"', minimum=0, maximum=1e9,
+                            label="winding series resistance")
     inductance: float = key("inductance", "H", "series leakage inductance (each half for centre-tap)", 0.0,
                             shown="0", minimum=0, maximum=1e3)
     mains_tolerance: float | None = _tolerance()
@@ -78,11 +79,12 @@ class TransformerSource:
 
     kind: ClassVar[str] = "transformer"
     primary_vrms: float = key("primary_vrms", "V", "rated primary (mains) voltage", required=True,
-                              need='the rated primary voltage, e.g. "230"', above=0, minimum=MIN_EMF, maximum=100e3)
+                              need='the rated primary voltage, e.g. "230"', above=0, minimum=MIN_EMF, maximum=100e3,
+                              label="rated primary voltage")
     secondary_vrms: float = key("secondary_vrms", "V", "rated secondary voltage at rated current, whole winding "
                                 "(a 300-0-300 V winding is 600 with centre_tap = true)", required=True,
                                 need='the rated secondary voltage, e.g. "600"', above=0, minimum=MIN_EMF,
-                                maximum=200e3)
+                                maximum=200e3, label="rated secondary voltage")
     rated_current: float = key("rated_current", "A", "rated secondary RMS current", required=True,
                                need='the rated secondary current, e.g. "150m"', above=0, maximum=1e3)
     frequency: float = _frequency()

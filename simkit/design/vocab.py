@@ -65,6 +65,16 @@ class Key:
     example: str = ""  # a value as a user would write it, for templates and messages
     text_default: Any = None  # a default that must be read like a value (a library part's name)
     of: tuple[type, ...] = ()  # a table's or list's model classes (the kinds of a tagged union)
+    label: str = ""  # a few words for axes and legends when the doc's first clause is too long
+
+    @property
+    def words(self) -> str:
+        """What the key is in a few words: ``label``, or the doc's first clause without a scope prefix
+        (``"doubler and cascade: each stage capacitor"`` -> ``"each stage capacitor"``)."""
+        if self.label:
+            return self.label
+        text = self.doc.split(";")[0].split(" (")[0].split(", e.g.")[0]
+        return text.split(": ", 1)[1] if ": " in text else text
 
 
 def key(name: str, unit: str, doc: str, default: Any = MISSING, **kw: Any) -> Any:

@@ -46,13 +46,16 @@ SECTIONS: tuple[str, ...] = ("Summary", "Schematic", "Inputs", "Figures", "Parts
 #: Helper elements simkit adds for the numerics, by name prefix: what they are.
 HELPER_NOTES: tuple[tuple[str, str], ...] = (
     ("RT", "10 MΩ ties from floating winding terminals to the return"),
-    ("CSW", "snubber across a winding with leakage inductance"),
-    ("RSW", "snubber across a winding with leakage inductance"),
-    ("CSR", "snubber at the input of a choke-input filter"),
-    ("RSR", "snubber at the input of a choke-input filter"),
     ("VD", "0 V current senses of the diodes"),
     ("VC", "0 V current senses of the capacitors"),
     ("VLOAD", "0 V current sense of the load"),
+    ("VPASS", "0 V current sense of the pass device"),
+    ("VSHUNT", "0 V current sense of the shunt element"),
+    ("SGLOW", "the glow tubes' strike model (drawn as GLOW)"),
+    ("BGLOW", "the glow tubes' strike model (drawn as GLOW)"),
+    ("RGLOW", "the glow tubes' strike model (drawn as GLOW)"),
+    ("RGLC", "the glow tubes' strike model (drawn as GLOW)"),
+    ("CGLC", "the glow tubes' strike model (drawn as GLOW)"),
     ("RESR", "capacitor ESR (shown in the capacitor's label)"),
     ("RDCR", "choke winding resistance (shown in the choke's label)"),
 )
@@ -204,8 +207,10 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
         doc.paragraph("The load keyed as the design says, after the keying settled"
                       + (f" (keying cycle {eng(cycle, 's')})" if cycle else "") + ": output voltage, and the "
                       "current each load draws. " + _keyed_note(result))
-        png, svg = plots.run_timeline_figure(result, keyed_waves, "Keyed load")
-        doc.image("keyed", png, svg, "Output voltage and load current while the load is keyed")
+        png, svg = plots.keyed_figure(result) if getattr(keyed, "window", None) is not None else \
+            plots.run_timeline_figure(result, keyed_waves, "Keyed load")
+        doc.image("keyed", png, svg, "Output voltage while the load is keyed: over one keying cycle (the one-period "
+                  "mean over the raw trace, key-down shaded), then the longest key-down and its edges close up")
     if getattr(d, "has_timeline", False):
         doc.heading("Start-up timeline", 3)
         doc.paragraph("From switch-on with every capacitor empty, with the heater warm-ups and load steps of the "
