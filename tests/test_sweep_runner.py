@@ -160,3 +160,24 @@ def test_workers_that_cannot_start_stop_the_run_with_exit_3(design: Path, tmp_pa
         run_sweep(design, ["load.r=1k,2k,3k"], opts)
     assert info.value.exit_code == 3  # the simulation could not be completed (docs/reference.md, exit codes)
     assert journal_points(tmp_path / "out") == []  # no point blamed for it
+
+
+def test_workers_are_forked_only_where_that_is_safe(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Python's multiprocessing documentation: fork copies the parent as it is (its threads do not come
+    # along, a loaded library's state does), so a parent with threads or with ngspice loaded spawns.
+    import sys
+    import threading
+
+    from simkit.sweep import pool
+
+    monkeypatch.setattr(sys, "platform", "linux")
+    monkeypatch.setitem(sys.modules, "PySpice", object())
+    assert pool._start_method() == "spawn"
+    monkeypatch.delitem(sys.modules, "PySpice")
+    monkeypatch.setattr(threading, "active_count", lambda: 1)
+    assert pool._start_method() == "fork"
+    monkeypatch.setattr(threading, "active_count", lambda: 2)
+    assert pool._start_method() == "spawn"
+    monkeypatch.setattr(threading, "active_count", lambda: 1)
+    monkeypatch.setattr(sys, "platform", "darwin")
+    assert pool._start_method() == "spawn"

@@ -58,9 +58,15 @@ def peak_to_peak(t: np.ndarray, y: np.ndarray, t0: float, t1: float) -> float:
 
 
 def integral_square(t: np.ndarray, y: np.ndarray, t0: float, t1: float) -> float:
-    """Integral of y^2 over [t0, t1] (I^2 t of a current, A^2 s)."""
+    """Integral of y^2 over [t0, t1] (I^2 t of a current, A^2 s).
+
+    Exact for y linear between samples: h (a^2 + a b + b^2) / 3 per interval.  The trapezoidal rule
+    on y^2, h (a^2 + b^2) / 2, adds h (a - b)^2 / 6 per interval: on the steep edges of a surge
+    pulse sampled at the measuring step that is a few tenths of a percent too much.
+    """
     tt, yy = clip(t, y, t0, t1)
-    return float(np.trapezoid(yy * yy, tt))
+    a, b = yy[:-1], yy[1:]
+    return float(np.sum(np.diff(tt) * (a * a + a * b + b * b)) / 3.0)
 
 
 @dataclass(frozen=True)

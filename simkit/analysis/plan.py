@@ -85,7 +85,7 @@ def estimate(design: Design, circuit: Circuit, keyed_cycle: float = 0.0) -> list
     on_span = min(on_span, startup.start_limit(design, circuit))
     fine = startup.FINE_START_PERIODS * T
     coarse = max(on_span - fine, 0.0) / T * startup.coarse_steps(design)
-    costs.append(Cost("switch-on", on_span, fine / T * 2 * steps + coarse))
+    costs.append(Cost("switch-on", on_span, fine / T * steps + coarse))
     if keyed_cycle > 0:
         span = max(math.ceil(2 * keyed_cycle / T), 4) * T * KEYED_CHUNKS
         costs.append(Cost("steady keying", span, span / T * steps + costs[0].points))

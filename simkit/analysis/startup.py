@@ -30,7 +30,7 @@ FINE_START_PERIODS = 1
 #: The surge run's first time step, as a share of its maximum step (ngspice starts at about a hundredth of
 #: the .tran step): a crest switch-on peaks at the very first instant.
 SURGE_FIRST_STEP = 0.01
-#: The most steps per period the surge run takes (twice the measuring step, up to this).
+#: The most steps per period the surge run takes (the measuring step, up to this).
 SURGE_MAX_STEPS = 4000
 #: Periods per chunk of the coarse part.
 COARSE_CHUNK = 5
@@ -100,7 +100,7 @@ def switch_on(engine: Engine, design: Design, circuit: Circuit, steps: int, targ
     fine = fixed if fixed is not None else FINE_START_PERIODS * T
     # The surge charges empty capacitors through the winding resistance alone: a steeper pulse than the
     # steady ones the measuring step was chosen for, so its periods run at twice that many steps.
-    surge_steps = steps if design.simulation.steps_per_period is not None else min(2 * steps, SURGE_MAX_STEPS)
+    surge_steps = steps if design.simulation.steps_per_period is not None else min(steps, SURGE_MAX_STEPS)
     first = run_span(engine, design, circuit, fine, zero, surge_steps, first=SURGE_FIRST_STEP)
     pieces = [first]
     if progress is not None:

@@ -27,6 +27,8 @@ from simkit.pipeline.results import RunResult
 _WARM: list[tuple[tuple[object, ...], np.ndarray, Solution]] = []
 #: How many recent solutions a process keeps for warm starts.
 WARM_KEEP = 16
+#: How many of the nearest kept solutions the warm-start predictor fits through.
+PREDICT_FROM = 6
 
 
 def _fingerprint(circuit: Circuit, vscale: float) -> tuple[tuple[object, ...], np.ndarray]:
@@ -40,9 +42,11 @@ def _fingerprint(circuit: Circuit, vscale: float) -> tuple[tuple[object, ...], n
 def _nearest(circuit: Circuit, vscale: float) -> Solution | None:
     """A warm start from the kept solutions of designs with the same structure, if any.
 
-    The nearest design's state, moved along the line through the two nearest: in a sweep the
-    state changes smoothly with the varied value, so a secant predicts the next point's state
-    better than its neighbour's (the predictor only shortens Newton's way, never its answer).
+    The nearest design's state, moved by a local linear fit through the nearest few: in a sweep
+    the state changes smoothly with the varied values, so the differences between solved
+    neighbours (along one row of a grid, and between rows) predict the next point's state far
+    better than its nearest neighbour alone (the predictor only shortens Newton's way, never its
+    answer).
     """
     key, values = _fingerprint(circuit, vscale)
     near = sorted(((float(np.sum(np.abs(v - values))), v, sol) for k, v, sol in _WARM
@@ -50,18 +54,16 @@ def _nearest(circuit: Circuit, vscale: float) -> Solution | None:
     if not near:
         return None
     d1, v1, s1 = near[0]
-    if len(near) < 2 or d1 == 0:
+    others = [(v, sol) for d, v, sol in near[1:PREDICT_FROM] if d <= 4 * d1 and sol.x.shape == s1.x.shape]
+    if d1 == 0 or not others:
         return s1
-    _, v2, s2 = near[1]
-    line = v1 - v2
-    span = float(line @ line)
-    if span == 0:
-        return s1
-    alpha = float((values - v1) @ line) / span
-    off_line = float(np.sum(np.abs(values - v1 - alpha * line)))
-    if not -0.5 <= alpha <= 2.0 or off_line > 0.1 * d1:
-        return s1
-    return replace(s1, x=s1.x + alpha * (s1.x - s2.x))
+    # values - v1 as a combination of the neighbours' offsets from v1; the states move the same way.
+    offsets = np.array([v - v1 for v, _ in others])
+    moves = np.array([sol.x - s1.x for _, sol in others])
+    coef, *_ = np.linalg.lstsq(offsets.T, values - v1, rcond=1e-9)
+    if not np.all(np.isfinite(coef)) or float(np.sum(np.abs(coef))) > 3.0:
+        return s1  # far outside what the neighbours span: no extrapolation
+    return replace(s1, x=s1.x + coef @ moves)
 
 
 def _remember(circuit: Circuit, vscale: float, solution: Solution) -> None:
