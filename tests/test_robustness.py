@@ -12,6 +12,7 @@ import os
 import subprocess
 import sys
 import textwrap
+import time
 from pathlib import Path
 
 import pytest
@@ -320,3 +321,44 @@ def test_read_only_and_full_disks_are_exit_2(tmp_path: Path, monkeypatch: pytest
                 OutputDir(target)
         finally:
             monkeypatch.undo()
+
+
+@pytest.mark.skipif(not hasattr(os, "fork"), reason="fork is a POSIX call")
+def test_a_forked_worker_does_not_keep_the_parents_journal_locked(tmp_path: Path) -> None:
+    # flock(2): the lock belongs to the open file, which a fork shares.  A sweep worker forked while its
+    # parent held the journal must not hold it once the parent let go (a resume right after a kill of the
+    # parent would be refused until the worker noticed).  The journal's descriptor is marked as the sweep
+    # marks it (simkit.sweep.journal); the folder lock is marked when taken.
+    import fcntl
+    import subprocess
+    import sys
+
+    from simkit.report.outputs import keep_from_children
+
+    path = tmp_path / "sweep.journal"
+    path.write_text("{}\n", "utf-8")
+    fh = open(path, "r+b")  # closed below, in the parent only
+    fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+    keep_from_children(fh.fileno())
+    r, w = os.pipe()
+    pid = os.fork()
+    if pid == 0:  # the child: tell the parent it runs, then live on for a while holding its copies
+        try:
+            os.close(r)
+            os.write(w, b"x")
+            time.sleep(5)
+        finally:
+            os._exit(0)
+    try:
+        os.close(w)
+        assert os.read(r, 1) == b"x"
+        keep_from_children(fh.fileno(), False)
+        fh.close()  # the parent lets go while the child still runs
+        probe = ("import fcntl, sys; f = open(sys.argv[1], 'rb'); fcntl.flock(f.fileno(), "
+                 "fcntl.LOCK_EX | fcntl.LOCK_NB); print('taken')")
+        done = subprocess.run([sys.executable, "-c", probe, str(path)], capture_output=True, text=True, timeout=60)
+        assert done.returncode == 0 and "taken" in done.stdout, done.stderr
+    finally:
+        os.kill(pid, 9)
+        os.waitpid(pid, 0)
+        os.close(r)

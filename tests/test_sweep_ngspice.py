@@ -72,10 +72,11 @@ def journal(path: Path) -> list[dict]:  # type: ignore[type-arg]
 
 
 def _alive(pid: int) -> bool:
+    """Is the process running (a zombie has ended; proc(5): the state is the field after the name)?"""
     try:
-        with open(f"/proc/{pid}/cmdline", "rb") as fh:
-            return b"multiprocessing" in fh.read()
-    except OSError:
+        with open(f"/proc/{pid}/stat", "rb") as fh:
+            return fh.read().rsplit(b")", 1)[1].split()[0] not in (b"Z", b"X")
+    except (OSError, IndexError):
         return False
 
 

@@ -53,7 +53,7 @@ TOLERANCE: dict[str, float] = {
     "current": 2.5e-3,
     "capacitor": 2.5e-3,
     "surge": 1e-3,
-    "i2t": 5e-3,
+    "i2t": 2.5e-3,
 }
 
 

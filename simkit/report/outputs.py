@@ -312,6 +312,48 @@ _HELD: dict[tuple[int, int], _FolderLock] = {}
 _HELD_GUARD = threading.Lock()
 
 
+#: Descriptors a forked child must not keep: the folder locks, and what other modules add
+#: (a sweep's journal, see :func:`keep_from_children`).
+_LOCK_FDS: set[int] = set()
+
+
+def keep_from_children(fd: int, keep: bool = True) -> None:
+    """Mark a descriptor whose lock a forked child (a sweep worker) must not hold, or unmark it."""
+    if keep:
+        _LOCK_FDS.add(fd)
+    else:
+        _LOCK_FDS.discard(fd)
+
+
+def _detach_locks_in_child() -> None:
+    """In a forked child: point the copies of the parent's locked descriptors at /dev/null.
+
+    An flock belongs to the open file, which a fork shares: a worker keeping the copy would hold
+    the parent's folder and journal after the parent died.  Giving the copy another file (dup2)
+    drops the child's reference without releasing the parent's lock (flock(2): it goes when every
+    descriptor of the open file is closed, or on LOCK_UN) and leaves any file object on it valid.
+    """
+    global _HELD_GUARD
+    _HELD_GUARD = threading.Lock()  # the parent forks with no other thread, but never inherit a held one
+    _HELD.clear()
+    if not _LOCK_FDS:
+        return
+    null = os.open(os.devnull, os.O_RDWR | _CLOEXEC)
+    try:
+        for fd in _LOCK_FDS:
+            try:
+                os.dup2(null, fd, inheritable=False)
+            except OSError:
+                pass
+    finally:
+        os.close(null)
+    _LOCK_FDS.clear()
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_detach_locks_in_child)
+
+
 def _lock_folder(folder: Path) -> _FolderLock | None:
     if fcntl is None:  # pragma: no cover
         return None
@@ -363,6 +405,7 @@ def _take(folder: Path, key: tuple[int, int]) -> _FolderLock:
                 os.close(fd)
                 raise OutputError(f"{folder}: cannot write into this folder: {os_problem(exc)}") from None
             _register_exit()
+            keep_from_children(fd)
             return _FolderLock(key, path, fd)
         except BaseException:
             try:
@@ -405,6 +448,7 @@ def _release(lock: _FolderLock) -> None:
             os.unlink(lock.path)
     except OSError:
         pass
+    keep_from_children(lock.fd, False)
     try:
         os.close(lock.fd)
     except OSError:

@@ -19,7 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from simkit.errors import OutputError, UsageError
-from simkit.report.outputs import os_problem, read_regular, refuse_non_file, write_atomic
+from simkit.report.outputs import keep_from_children, os_problem, read_regular, refuse_non_file, write_atomic
 
 try:
     import fcntl
@@ -50,6 +50,7 @@ class Opened:
 
     def close(self) -> None:
         if self._fh is not None:
+            keep_from_children(self._fh.fileno(), False)
             self._fh.close()
             self._fh = None
 
@@ -120,6 +121,7 @@ def _lock(fh: Any, path: Path) -> None:
         fh.close()
         raise UsageError(f"{path}: another simkit is writing this folder right now; wait for it or choose "
                          "another --out folder") from None
+    keep_from_children(fh.fileno())  # a forked worker must not hold the journal after the parent
 
 
 def _open_append(opened: Opened) -> Opened:
@@ -148,6 +150,7 @@ def _start(path: Path, ident: dict[str, Any]) -> Opened:
         _lock(fh, path)
     finally:
         if old is not None:
+            keep_from_children(old.fileno(), False)
             old.close()
     fh.seek(0, os.SEEK_END)
     return Opened(path, ident, {}, resumed=False, _fh=fh)
