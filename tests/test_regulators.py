@@ -52,6 +52,7 @@ def test_zener_string_regulation_arithmetic() -> None:
     a = run(base.replace("{i}", "10m"))
     b = run(base.replace("{i}", "20m"))
     ia, ib = a.parts["DZ"].current_min_a, b.parts["DZ"].current_min_a
+    assert a.parts["DZ"].struck is None  # a zener has nothing to strike
     assert ia - ib == pytest.approx(0.010, rel=0.02)
     # Measured: the output change within 0.001 %, the level within 0.4 mV (the zener current ripples a little).
     dv = a.metrics["reg_vout_v"] - b.metrics["reg_vout_v"]
@@ -70,6 +71,7 @@ def test_glow_tube_regulation_against_the_od3_sheet() -> None:
     i_light, i_heavy = light.parts["GLOW"].current_min_a, heavy.parts["GLOW"].current_min_a
     for r, i in ((light, i_light), (heavy, i_heavy)):
         assert 5e-3 < i < 40e-3
+        assert r.parts["GLOW"].struck is True  # regulating, so it struck in the start-up run
         assert abs(r.metrics["reg_vout_v"] - 150.0) <= 5.5
     # The slope is the sheet's 5.5 V over 35 mA.  Measured +0.64 %: the 1 ohm on-resistance of the switch
     # simkit strikes the tube with adds to its 157 ohm.

@@ -561,7 +561,8 @@ def verify(design: Design, circuit: Circuit, final: Run, space: _Space, jac: np.
 def power_balance(design: Design, circuit: Circuit, w: Waveforms, t0: float, t1: float) -> tuple[float, float, float]:
     """Mean power from the source EMFs, into stored energy, and into the loads and bleeder, W.
 
-    Stored energy is 1/2 C v^2 of every capacitor and 1/2 L i^2 of every inductor, from the
+    Stored energy is 1/2 C v^2 of every capacitor that is a circuit's (not a model's state: an
+    inverter's smoothed power is a "voltage" in watts) and 1/2 L i^2 of every inductor, from the
     state at both ends of [t0, t1]; at a periodic state it comes back to where it started.
     """
     span = t1 - t0
@@ -573,6 +574,8 @@ def power_balance(design: Design, circuit: Circuit, w: Waveforms, t0: float, t1:
     b = state_at(circuit, w, t1)
     e = 0.0
     for cap in circuit.capacitors:
+        if cap.role in ("aux", "sense"):
+            continue  # a model's state (an inverter's smoothed power, a sensing delay), not stored energy
         e += 0.5 * cap.value * (b[cap.name] ** 2 - a[cap.name] ** 2)
     for ind in circuit.inductors:
         e += 0.5 * ind.value * (b[ind.name] ** 2 - a[ind.name] ** 2)

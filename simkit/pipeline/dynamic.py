@@ -14,7 +14,7 @@ import numpy as np
 from simkit.analysis import metrics as mx
 from simkit.analysis.keyed import KeyedRun
 from simkit.analysis.runs import Run
-from simkit.design.model import Design, SeriesRegulator, StepsLoad
+from simkit.design.model import Design, SeriesRegulator, ShuntRegulator, StepsLoad
 from simkit.engine.ngspice import Waveforms
 from simkit.netlist.build import keying_drive
 from simkit.netlist.circuit import Circuit
@@ -149,7 +149,22 @@ def regulator_figures(design: Design, circuit: Circuit, w: Waveforms, window: tu
     parts["DZ" if reg.zener is not None else "GLOW"] = RegulatorResult(
         role="shunt element", dissipation_w=means[0], dissipation_peak_w=max(peaks),
         current_min_a=m["shunt_current_min_a"], current_max_a=m["shunt_current_max_a"],
-        switch_on_voltage_max_v=float(np.max(sw.v("sh"))), struck=bool(np.max(sw.i("vshunt")) > 1e-4))
+        switch_on_voltage_max_v=float(np.max(sw.v("sh"))), struck=_struck(reg, sw, sc.period))
+
+
+def _struck(reg: ShuntRegulator, sw: Waveforms, period: float) -> bool | None:
+    """Did the glow tubes strike in the start-up run?  None for zeners (nothing to strike) and when the
+    run cannot tell: it ended while the voltage across the tubes was still rising."""
+    if reg.glow is None:
+        return None
+    if float(np.max(sw.i("vshunt"))) > 1e-4:
+        return True
+    t, v = sw.time, sw.v("sh")
+    end = float(t[-1])
+    if end < 3 * period:
+        return None
+    last, before = mx.mean(t, v, end - period, end), mx.mean(t, v, end - 2 * period, end - period)
+    return False if abs(last - before) <= 0.002 * max(abs(last), 1e-9) else None
 
 
 def step_figures(design: Design, sc: Circuit, start: Run, m: dict[str, float], warnings: list[str]) -> None:
