@@ -34,8 +34,25 @@ def _tolerance() -> Any:
                shown="none", label="mains tolerance")
 
 
+class _Periodic:
+    """What every source kind derives from its RMS voltage and frequency."""
+
+    vrms: float
+    frequency: float
+
+    @property
+    def vpeak(self) -> float:
+        """Open-circuit peak voltage of a sine of the same RMS, V."""
+        return math.sqrt(2.0) * self.vrms
+
+    @property
+    def period(self) -> float:
+        """One period of the source, s."""
+        return 1.0 / self.frequency
+
+
 @dataclass(frozen=True)
-class SineSource:
+class SineSource(_Periodic):
     """``kind = "sine"``: an EMF behind series resistance and leakage inductance."""
 
     kind: ClassVar[str] = "sine"
@@ -56,18 +73,10 @@ class SineSource:
     transformer: ClassVar[None] = None
     inverter: ClassVar[None] = None
 
-    @property
-    def vpeak(self) -> float:
-        """Open-circuit peak voltage, V."""
-        return math.sqrt(2.0) * self.vrms
-
-    @property
-    def period(self) -> float:
-        return 1.0 / self.frequency
 
 
 @dataclass(frozen=True)
-class TransformerSource:
+class TransformerSource(_Periodic):
     """``kind = "transformer"``: a mains transformer described by its nameplate.
 
     With regulation r (no-load rise over full-load voltage): V_oc = V_fl (1 + r) and the series
@@ -185,13 +194,6 @@ class TransformerSource:
     def inductance(self) -> float:
         return self._per_winding()[2]
 
-    @property
-    def vpeak(self) -> float:
-        return math.sqrt(2.0) * self.vrms
-
-    @property
-    def period(self) -> float:
-        return 1.0 / self.frequency
 
 
 def read_efficiency_table(rd: Reader, raw: Any, path: str,
@@ -218,7 +220,7 @@ def read_efficiency_table(rd: Reader, raw: Any, path: str,
 
 
 @dataclass(frozen=True)
-class InverterSource:
+class InverterSource(_Periodic):
     """``kind = "inverter"``: a battery-fed inverter's output, sine, square or modified sine.
 
     A modified sine (three-level wave) of step height ``peak`` reaches the RMS ``vrms`` when
@@ -314,13 +316,6 @@ class InverterSource:
     def edge_time(self) -> float:
         return self.edge_time_given if self.edge_time_given is not None else self.period / 500
 
-    @property
-    def vpeak(self) -> float:
-        return math.sqrt(2.0) * self.vrms
-
-    @property
-    def period(self) -> float:
-        return 1.0 / self.frequency
 
     def input_power(self, p_out: float) -> float:
         """Battery power for an output power, W (the loss model of the design file)."""

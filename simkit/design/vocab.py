@@ -327,6 +327,11 @@ def read_section(rd: Reader, cls: type, table: Mapping[str, Any], path: str, **e
     ``extra`` are fields the file does not set (given by the context, e.g. a load's name).
     """
     rd.check_keys(table, keys(cls), path, required=False)
+    return _build(rd, cls, table, path, extra)
+
+
+def _build(rd: Reader, cls: type, table: Mapping[str, Any], path: str, extra: Mapping[str, Any]) -> Any:
+    """The class's refusals on the raw table, every key read, the object made, the class's rules on it."""
     refuse = getattr(cls, "refuse", None)
     if refuse is not None:
         refuse(rd, table, path)
@@ -364,14 +369,7 @@ def read_kind(rd: Reader, kinds: Sequence[type], table: Mapping[str, Any], path:
         if name != "kind" and name not in own:
             owners = [c for c in kinds if name in keys(c)]
             raise rd.fail(f"{path}.{name}", foreign(name, cls, owners[0] if len(owners) == 1 else None))
-    refuse = getattr(cls, "refuse", None)
-    if refuse is not None:
-        refuse(rd, table, path)
-    obj = cls(**fields_of(rd, cls, table, path), **extra)
-    rules = getattr(cls, "rules", None)
-    if rules is not None:
-        rules(obj, rd, table, path)
-    return obj
+    return _build(rd, cls, table, path, extra)
 
 
 def walk(cls: type) -> Iterator[tuple[str, Key]]:
