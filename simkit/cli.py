@@ -77,19 +77,23 @@ def cli(ctx: click.Context) -> None:
 @click.option("--force", is_flag=True, help="With --out: replace files simkit did not write.")
 @click.option("--mains", type=click.Choice(["nominal", "high", "low"]), default="nominal", show_default=True,
               help="Simulate the supply at +- source.mains_tolerance.")
+@click.option("--probe", "probes", multiple=True, metavar="NAME", help="With --out: also write this waveform as "
+              "probe-NAME.csv and .png: a node (out), a part's current (D1) or voltage (v(C1)); repeatable. "
+              "`simkit netlist DESIGN --nodes` lists the names.")
 def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | None, force: bool,
-        mains: str) -> None:
+        mains: str, probes: tuple[str, ...]) -> None:
     """Simulate a design and print its figures."""
     from simkit.report.outputs import OutputDir
     from simkit.report.text import run_table
 
     d = _load(design, overrides)
     vscale = _mains_scale(d, mains)
+    probe_files = _probe_plan(d, probes, out_dir)
     with contextlib.ExitStack() as stack:
         out = None
         if out_dir:  # opened (created, locked, proved writable) before the simulation
             out = stack.enter_context(OutputDir(out_dir, force=force))
-            out.check(["result.json", "deck.cir", "waveforms.png"])
+            out.check(["result.json", "deck.cir", "waveforms.png", *probe_files])
         result = _simulate(d, vscale)
         if vscale != 1.0:
             result.warnings.insert(0, f"simulated at {mains} mains: the source EMF x {vscale:g}")
@@ -106,6 +110,26 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
             out.write("deck.cir", result.deck)
             out.write("waveforms.png", run_figure_bytes(result))
             click.echo(f"simkit: wrote result.json, deck.cir and waveforms.png in {out.path}", err=True)
+            _write_probes(result, probes, out)
+
+
+def _probe_plan(design: Any, probes: tuple[str, ...], out_dir: str | None) -> list[str]:
+    """The files ``run --probe`` writes, every name checked before the simulation (exit 2 listing the valid ones)."""
+    if not probes:
+        return []
+    if not out_dir:
+        raise UsageError("--probe writes files: give --out DIR as well")
+    from simkit.report.probes import planned_files
+
+    return planned_files(design, probes)
+
+
+def _write_probes(result: Any, probes: tuple[str, ...], out: Any) -> None:
+    if probes:
+        from simkit.report.probes import write_probes
+
+        names = write_probes(result, probes, out)
+        click.echo(f"simkit: wrote {', '.join(names)} in {out.path}", err=True)
 
 
 @cli.command()
@@ -114,11 +138,16 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
 @click.option("-o", "output", type=click.Path(dir_okay=False), help="Write the deck to this file "
               "instead of stdout (an existing file is kept unless --force).")
 @click.option("--force", is_flag=True, help="With -o: replace an existing file.")
-def netlist(design: str, overrides: tuple[str, ...], output: str | None, force: bool) -> None:
+@click.option("--nodes", is_flag=True, help="Instead of the deck: what each node of the deck is, what connects "
+              "there, and the part names --probe takes (nothing is simulated).")
+def netlist(design: str, overrides: tuple[str, ...], output: str | None, force: bool, nodes: bool) -> None:
     """Print the SPICE deck of the steady-state run, with .meas lines for ngspice -b."""
     from simkit.report.outputs import PendingFile
 
     d = _load(design, overrides)
+    if nodes:
+        _node_map(d, output, force)
+        return
     with contextlib.ExitStack() as stack:
         # The file is checked and reserved before the simulation: a folder that cannot be written
         # fails now, not after it.
@@ -131,6 +160,21 @@ def netlist(design: str, overrides: tuple[str, ...], output: str | None, force: 
             click.echo(f"simkit: wrote {output}", err=True)
         else:
             click.echo(deck, nl=False)
+
+
+def _node_map(design: Any, output: str | None, force: bool) -> None:
+    """``netlist --nodes``: the node map of the design's deck, on stdout or into ``-o FILE``."""
+    from simkit.netlist.build import build_circuit
+    from simkit.pipeline.probes import node_map_text
+    from simkit.report.outputs import PendingFile
+
+    text = node_map_text(build_circuit(design))
+    if output:
+        with PendingFile(output, force=force) as target:
+            target.commit(text)
+        click.echo(f"simkit: wrote {output}", err=True)
+    else:
+        click.echo(text, nl=False)
 
 
 @cli.command()
