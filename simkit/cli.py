@@ -378,6 +378,67 @@ def size(design: str, vary: str, target: str, overrides: tuple[str, ...], as_jso
         click.echo(summary_text(result), nl=False)
 
 
+@cli.command()
+@click.argument("designs", nargs=-1, type=click.Path())
+@click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP + " Applies to every design.")
+@click.option("--variant", "variants", multiple=True, metavar="PATH=VALUE[;PATH=VALUE]",
+              help="With one design: a column with these changes (repeatable; several changes joined by ';').")
+@click.option("--json", "as_json", is_flag=True, help="Print exactly one JSON document on stdout.")
+@click.option("--report", "report_dir", type=click.Path(file_okay=False), help="Also write report.md, report.html, "
+              "compare.json and the plots on shared axes into this folder.")
+@click.option("--no-check", "no_check", is_flag=True, help="Skip the stress checks (faster; no verdict counts).")
+@click.option("--force", is_flag=True, help="With --report: replace files simkit did not write.")
+def compare(designs: tuple[str, ...], overrides: tuple[str, ...], variants: tuple[str, ...], as_json: bool,
+            report_dir: str | None, no_check: bool, force: bool) -> None:
+    """Simulate several designs (or variants of one) and show their figures side by side.
+
+    The first design is the reference: each change is another design's figure minus the first's.
+    """
+    from simkit.report.compare import REPORT_FILES, compare_text, write_report
+    from simkit.report.outputs import OutputDir
+    from simkit.sidebyside import compare_files
+
+    with contextlib.ExitStack() as stack:
+        out = None
+        if report_dir:  # created, locked and checked before anything is simulated
+            out = stack.enter_context(OutputDir(report_dir, force=force))
+            out.check(list(REPORT_FILES))
+        done = compare_files(designs, overrides, variants, check=not no_check,
+                             echo=lambda text: click.echo(text, err=True))
+        for e in done.entries:
+            if e.check_error:
+                click.echo(f"simkit: warning: {e.label}: the stress checks could not be completed: {e.check_error}",
+                           err=True)
+        if as_json:
+            click.echo(json.dumps(done.to_json(), indent=2))
+        else:
+            click.echo(compare_text(done), nl=False)
+        if out is not None:
+            names = write_report(done, out)
+            click.echo(f"simkit: wrote {', '.join(names)} in {out.path}", err=True)
+
+
+@cli.command()
+@click.argument("design", type=click.Path())
+@click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
+@click.option("--port", type=click.IntRange(min=0, max=65535), default=8470, show_default=True,
+              help="Port on 127.0.0.1 (this computer only); 0 picks a free one.")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), help="Folder for the report, inside the "
+              "design's folder (default: DESIGN's name with -watch, beside it).")
+@click.option("--force", is_flag=True, help="Replace files simkit did not write in that folder.")
+def watch(design: str, overrides: tuple[str, ...], port: int, out_dir: str | None, force: bool) -> None:
+    """Serve the design's report on this computer and run it again whenever the file is saved.
+
+    Open the address it prints in a browser: the page follows each run (stage, elapsed time,
+    figures, checks, report) and shows an error in the file while keeping the last good result.
+    Ctrl-C stops it.
+    """
+    from simkit.watch import watch as serve
+
+    serve(design, overrides, port=port, out=out_dir, force=force, echo=lambda t: click.echo(t, err=True),
+          announce=click.echo)
+
+
 def examples_dir() -> Path:
     return Path(str(resources.files("simkit") / "examples"))
 
