@@ -23,7 +23,7 @@ from pathlib import Path
 import pytest
 
 from simkit.errors import UsageError
-from simkit.watch import check_out_dir, default_out_dir
+from simkit.watch import Runner, Watched, check_out_dir, default_out_dir
 from simkit.watch.server import FILE_POLICY, HOST, WatchServer
 from simkit.watch.state import LiveState, Served
 from tests.cdp import Browser
@@ -122,6 +122,26 @@ def test_the_state_keeps_the_last_good_figures_through_an_error() -> None:
     state.figures(3, "t", {"vout_dc_v": 303.0}, [])
     snap = state.snapshot()
     assert snap["error"] is None and snap["result"]["figures"][0]["change"] == "+3 V (+1 %)"
+
+
+def test_a_run_follows_changes_of_content_only(tmp_path: Path) -> None:
+    design = tmp_path / "amp.toml"
+    design.write_text(EXAMPLE.read_text())
+    runner = Runner(str(design), (), None, LiveState(design_file="amp.toml"), lambda _text: None)
+    assert runner.changed()  # the first look runs it
+    assert not runner.changed()
+    os.utime(design, ns=(time.time_ns() + 5_000_000_000,) * 2)  # touched, or saved unchanged
+    assert not runner.changed()
+    design.write_text(EXAMPLE.read_text().replace('r = "4k"', 'r = "5k"'))
+    assert runner.changed()
+
+
+def test_watching_reads_only_regular_design_sized_files(tmp_path: Path) -> None:
+    design = tmp_path / "amp.toml"
+    design.write_text('library = "/dev/zero"\n' + EXAMPLE.read_text())
+    watched = Watched(design)
+    assert watched.files() == [design, Path("/dev/zero")]
+    assert len(watched.content()) == 64  # /dev/zero is refused by the safe reader, never read
 
 
 # -- the page in a browser, while the file changes ----------------------------------------------------

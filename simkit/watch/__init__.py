@@ -79,12 +79,15 @@ class Watched:
         return tuple(out)
 
     def content(self) -> str:
+        """A digest of the files' bytes, read as the loader reads them (regular files of design size only)."""
+        from simkit.design.loader import read_design_bytes
+
         h = hashlib.sha256()
         for f in self.files():
             try:
-                h.update(f.read_bytes()[:2_000_000])
-            except OSError:
-                h.update(b"missing")
+                h.update(read_design_bytes(f))
+            except DesignError as exc:  # missing, a FIFO, too big: the run will say so; its state counts here
+                h.update(str(exc).encode("utf-8", "replace"))
         return h.hexdigest()
 
 
