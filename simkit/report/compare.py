@@ -200,7 +200,9 @@ def build_report(comparison: Any) -> Document:
                   "design [1]'s value.")
     headers, rows = table_rows(comparison)
     meaning = {k: FIGURES[k].meaning if k in FIGURES else "" for k in comparison.figure_names}
-    doc.table([*headers, "meaning"], [[*r, meaning[r[0]]] for r in rows],
+    # Values and changes stay on one line each (a no-break space inside "−45 %").
+    doc.table([*headers, "meaning"], [[r[0], *(c.replace(" ", "\u00a0") for c in r[1:]), meaning[r[0]]]
+                                      for r in rows],
               align="l" + "r" * (len(headers) - 1) + "l", markup=False)
     if comparison.checked:
         doc.heading("Checks")
