@@ -31,11 +31,12 @@ AMP = EXAMPLES / "bench_amp_bridge_clc.toml"  # bridge into C-L-C, 4 k load, 100
 
 #: Waveforms against the reference solver, pointwise: a modest factor above the largest disagreement
 #: measured over these cases (`pytest tests/test_probes.py -k refsolver`; docs/testing.md): output
-#: 0.21 % of its ripple, diode current 0.08 % of its peak in steady state; after switch-on 2.2e-5 of
-#: the highest output and 1.7e-5 of the surge.
+#: 0.21 % of its ripple, diode current 0.08 % of its peak in steady state; after switch-on 1.7e-4 of
+#: the highest output and 1.3e-4 of the surge (the switch-on run at the measuring step after the
+#: surge period: samples further apart, so more between them to interpolate).
 OUT_TOL = 5e-3
 DIODE_TOL = 2.5e-3
-START_TOL = 1e-4
+START_TOL = 5e-4
 
 CASES = [Case("bridge into C", "bridge", 300.0, 50.0, 20.0, 100e-6, 3000.0),
          Case("half-wave into C, 60 Hz", "half-wave", 250.0, 60.0, 10.0, 220e-6, 5000.0)]
