@@ -77,19 +77,23 @@ def cli(ctx: click.Context) -> None:
 @click.option("--force", is_flag=True, help="With --out: replace files simkit did not write.")
 @click.option("--mains", type=click.Choice(["nominal", "high", "low"]), default="nominal", show_default=True,
               help="Simulate the supply at +- source.mains_tolerance.")
+@click.option("--probe", "probes", multiple=True, metavar="NAME", help="With --out: also write this waveform as "
+              "probe-NAME.csv and .png: a node (out), a part's current (D1) or voltage (v(C1)); repeatable. "
+              "`simkit netlist DESIGN --nodes` lists the names.")
 def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | None, force: bool,
-        mains: str) -> None:
+        mains: str, probes: tuple[str, ...]) -> None:
     """Simulate a design and print its figures."""
     from simkit.report.outputs import OutputDir
     from simkit.report.text import run_table
 
     d = _load(design, overrides)
     vscale = _mains_scale(d, mains)
+    probe_files = _probe_plan(d, probes, out_dir)
     with contextlib.ExitStack() as stack:
         out = None
         if out_dir:  # opened (created, locked, proved writable) before the simulation
             out = stack.enter_context(OutputDir(out_dir, force=force))
-            out.check(["result.json", "deck.cir", "waveforms.png"])
+            out.check(["result.json", "deck.cir", "waveforms.png", *probe_files])
         result = _simulate(d, vscale)
         if vscale != 1.0:
             result.warnings.insert(0, f"simulated at {mains} mains: the source EMF x {vscale:g}")
@@ -106,6 +110,26 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
             out.write("deck.cir", result.deck)
             out.write("waveforms.png", run_figure_bytes(result))
             click.echo(f"simkit: wrote result.json, deck.cir and waveforms.png in {out.path}", err=True)
+            _write_probes(result, probes, out)
+
+
+def _probe_plan(design: Any, probes: tuple[str, ...], out_dir: str | None) -> list[str]:
+    """The files ``run --probe`` writes, every name checked before the simulation (exit 2 listing the valid ones)."""
+    if not probes:
+        return []
+    if not out_dir:
+        raise UsageError("--probe writes files: give --out DIR as well")
+    from simkit.report.probes import planned_files
+
+    return planned_files(design, probes)
+
+
+def _write_probes(result: Any, probes: tuple[str, ...], out: Any) -> None:
+    if probes:
+        from simkit.report.probes import write_probes
+
+        names = write_probes(result, probes, out)
+        click.echo(f"simkit: wrote {', '.join(names)} in {out.path}", err=True)
 
 
 @cli.command()
@@ -114,11 +138,16 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
 @click.option("-o", "output", type=click.Path(dir_okay=False), help="Write the deck to this file "
               "instead of stdout (an existing file is kept unless --force).")
 @click.option("--force", is_flag=True, help="With -o: replace an existing file.")
-def netlist(design: str, overrides: tuple[str, ...], output: str | None, force: bool) -> None:
+@click.option("--nodes", is_flag=True, help="Instead of the deck: what each node of the deck is, what connects "
+              "there, and the part names --probe takes (nothing is simulated).")
+def netlist(design: str, overrides: tuple[str, ...], output: str | None, force: bool, nodes: bool) -> None:
     """Print the SPICE deck of the steady-state run, with .meas lines for ngspice -b."""
     from simkit.report.outputs import PendingFile
 
     d = _load(design, overrides)
+    if nodes:
+        _node_map(d, output, force)
+        return
     with contextlib.ExitStack() as stack:
         # The file is checked and reserved before the simulation: a folder that cannot be written
         # fails now, not after it.
@@ -131,6 +160,21 @@ def netlist(design: str, overrides: tuple[str, ...], output: str | None, force: 
             click.echo(f"simkit: wrote {output}", err=True)
         else:
             click.echo(deck, nl=False)
+
+
+def _node_map(design: Any, output: str | None, force: bool) -> None:
+    """``netlist --nodes``: the node map of the design's deck, on stdout or into ``-o FILE``."""
+    from simkit.netlist.build import build_circuit
+    from simkit.pipeline.probes import node_map_text
+    from simkit.report.outputs import PendingFile
+
+    text = node_map_text(build_circuit(design))
+    if output:
+        with PendingFile(output, force=force) as target:
+            target.commit(text)
+        click.echo(f"simkit: wrote {output}", err=True)
+    else:
+        click.echo(text, nl=False)
 
 
 @cli.command()
@@ -332,6 +376,67 @@ def size(design: str, vary: str, target: str, overrides: tuple[str, ...], as_jso
         click.echo(json.dumps(result.to_json(), indent=2))
     else:
         click.echo(summary_text(result), nl=False)
+
+
+@cli.command()
+@click.argument("designs", nargs=-1, type=click.Path())
+@click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP + " Applies to every design.")
+@click.option("--variant", "variants", multiple=True, metavar="PATH=VALUE[;PATH=VALUE]",
+              help="With one design: a column with these changes (repeatable; several changes joined by ';').")
+@click.option("--json", "as_json", is_flag=True, help="Print exactly one JSON document on stdout.")
+@click.option("--report", "report_dir", type=click.Path(file_okay=False), help="Also write report.md, report.html, "
+              "compare.json and the plots on shared axes into this folder.")
+@click.option("--no-check", "no_check", is_flag=True, help="Skip the stress checks (faster; no verdict counts).")
+@click.option("--force", is_flag=True, help="With --report: replace files simkit did not write.")
+def compare(designs: tuple[str, ...], overrides: tuple[str, ...], variants: tuple[str, ...], as_json: bool,
+            report_dir: str | None, no_check: bool, force: bool) -> None:
+    """Simulate several designs (or variants of one) and show their figures side by side.
+
+    The first design is the reference: each change is another design's figure minus the first's.
+    """
+    from simkit.report.compare import REPORT_FILES, compare_text, write_report
+    from simkit.report.outputs import OutputDir
+    from simkit.sidebyside import compare_files
+
+    with contextlib.ExitStack() as stack:
+        out = None
+        if report_dir:  # created, locked and checked before anything is simulated
+            out = stack.enter_context(OutputDir(report_dir, force=force))
+            out.check(list(REPORT_FILES))
+        done = compare_files(designs, overrides, variants, check=not no_check,
+                             echo=lambda text: click.echo(text, err=True))
+        for e in done.entries:
+            if e.check_error:
+                click.echo(f"simkit: warning: {e.label}: the stress checks could not be completed: {e.check_error}",
+                           err=True)
+        if as_json:
+            click.echo(json.dumps(done.to_json(), indent=2))
+        else:
+            click.echo(compare_text(done), nl=False)
+        if out is not None:
+            names = write_report(done, out)
+            click.echo(f"simkit: wrote {', '.join(names)} in {out.path}", err=True)
+
+
+@cli.command()
+@click.argument("design", type=click.Path())
+@click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
+@click.option("--port", type=click.IntRange(min=0, max=65535), default=8470, show_default=True,
+              help="Port on 127.0.0.1 (this computer only); 0 picks a free one.")
+@click.option("--out", "out_dir", type=click.Path(file_okay=False), help="Folder for the report, inside the "
+              "design's folder (default: DESIGN's name with -watch, beside it).")
+@click.option("--force", is_flag=True, help="Replace files simkit did not write in that folder.")
+def watch(design: str, overrides: tuple[str, ...], port: int, out_dir: str | None, force: bool) -> None:
+    """Serve the design's report on this computer and run it again whenever the file is saved.
+
+    Open the address it prints in a browser: the page follows each run (stage, elapsed time,
+    figures, checks, report) and shows an error in the file while keeping the last good result.
+    Ctrl-C stops it.
+    """
+    from simkit.watch import watch as serve
+
+    serve(design, overrides, port=port, out=out_dir, force=force, echo=lambda t: click.echo(t, err=True),
+          announce=click.echo)
 
 
 def examples_dir() -> Path:

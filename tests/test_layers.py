@@ -31,6 +31,8 @@ RANKS: dict[str, int] = {
     "simkit.report": 9,
     "simkit.sweep": 10,
     "simkit.cli": 11, "simkit.demo": 11, "simkit.docgen": 11, "simkit.goldens": 11, "simkit.templates": 11,
+    # the Python API and the exploring commands: front ends like the command line
+    "simkit.api": 11, "simkit.sidebyside": 11, "simkit.watch": 11,
     "simkit.__main__": 12,
 }
 
@@ -50,6 +52,25 @@ def module_name(path: Path) -> str:
     if parts[-1] == "__init__":
         parts.pop()
     return ".".join(parts)
+
+
+#: The package's lazy API: ``simkit/__init__.py`` imports ``simkit.api`` inside its module-level
+#: ``__getattr__``, which runs only when a program first looks up ``simkit.load`` (and the rest), after
+#: the package is loaded.  Importing any module of simkit never runs it (checked below by
+#: test_import_simkit_loads_no_other_module), so it is neither a dependency of layer 0 nor a loop;
+#: this is the only import the walk leaves out for that reason.
+LAZY_API = ("simkit", "simkit.api")
+
+
+def _lazy_api(node: ast.AST, parents: dict[ast.AST, ast.AST], here: str) -> bool:
+    """The package's ``from simkit import api`` inside its module ``__getattr__``."""
+    if here != LAZY_API[0]:
+        return False
+    parent = parents.get(node)
+    while parent is not None and not isinstance(parent, (ast.FunctionDef, ast.AsyncFunctionDef)):
+        parent = parents.get(parent)
+    return isinstance(parent, ast.FunctionDef) and parent.name == "__getattr__" and parents.get(parent) is not None \
+        and isinstance(parents[parent], ast.Module)
 
 
 def _type_checking_only(node: ast.AST, parents: dict[ast.AST, ast.AST]) -> bool:
@@ -85,6 +106,8 @@ def imports(path: Path) -> list[tuple[int, str]]:
             continue
         if _type_checking_only(node, parents):
             continue
+        if _lazy_api(node, parents, here):
+            names = [n for n in names if n != LAZY_API[1]]
         found += [(node.lineno, n) for n in names if n == "simkit" or n.startswith("simkit.")]
     return found
 
@@ -150,3 +173,31 @@ def test_no_import_loops() -> None:
 
     for m in sorted(graph):
         visit(m, ())
+
+
+def test_the_lazy_api_is_the_only_import_left_out() -> None:
+    init = ROOT / "__init__.py"
+    tree = ast.parse(init.read_text(encoding="utf-8"))
+    parents = {child: node for node in ast.walk(tree) for child in ast.iter_child_nodes(node)}
+    lazy = [n for n in ast.walk(tree)
+            if isinstance(n, (ast.Import, ast.ImportFrom)) and _lazy_api(n, parents, "simkit")]
+    assert len(lazy) == 1 and isinstance(lazy[0], ast.ImportFrom) and [a.name for a in lazy[0].names] == ["api"]
+    # Anywhere else the same import counts: a module of layer 0 importing the API at its top is caught.
+    probe = ROOT / "_probe_lazy.py"
+    try:
+        probe.write_text("from simkit import api\n\n\ndef __getattr__(name):\n    from simkit import api\n")
+        assert [n for _, n in imports(probe)].count("simkit.api") == 2
+    finally:
+        probe.unlink()
+
+
+def test_import_simkit_loads_no_other_module() -> None:
+    """``import simkit`` loads the package alone (the command line starts fast); the API comes on first use."""
+    import subprocess
+    import sys
+
+    code = ("import sys, simkit; before = sorted(m for m in sys.modules if m.startswith('simkit')); "
+            "heavy = sorted(m for m in ('numpy', 'scipy', 'matplotlib', 'PySpice') if m in sys.modules); "
+            "simkit.load; print(before, heavy, 'simkit.api' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.strip()
+    assert out == "['simkit'] [] True"

@@ -148,6 +148,13 @@ class RunResult:
 
         return steady_deck(self)
 
+    def waveform(self, name: str, run: str = "steady") -> Any:
+        """A node's voltage, a part's current or ``v(PART)`` over the steady-state window or the
+        switch-on run: a :class:`simkit.pipeline.probes.Waveform` (unpacks as ``time, value``)."""
+        from simkit.pipeline.probes import waveform  # probes reads results, not the other way round
+
+        return waveform(self, name, run)
+
 
 def _clean(v: Any) -> Any:
     if isinstance(v, float) and not math.isfinite(v):
