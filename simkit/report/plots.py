@@ -103,7 +103,7 @@ UNIT_WORDS: dict[str, str] = {"V": "voltage", "A": "current", "W": "power", "s":
                               "VA": "apparent power", "Hz": "frequency", "%": "percent", "dB": "ratio",
                               "F": "capacitance", "H": "inductance", "Ω": "resistance"}
 #: Units shown without an SI prefix.
-NO_PREFIX = ("", "%", "dB", "h", "°", "A²s")
+NO_PREFIX = ("", "%", "dB", "h", "°", "A²s", "dBV", "dBuV", "dBµV")
 
 
 def figure_label(key: str, unit: str) -> str:

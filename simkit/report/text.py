@@ -13,9 +13,9 @@ if TYPE_CHECKING:
     from simkit.pipeline import RunResult
 
 #: How a unit is written for people (prefixes are added by eng()).
-SYMBOLS = {"ohm": "Ω", "A2s": "A²s"}
+SYMBOLS = {"ohm": "Ω", "A2s": "A²s", "dBuV": "dBµV"}
 #: Units shown without an SI prefix: a prefix would mislead ((mA)²s, mh).
-_PLAIN = ("h", "%", "", "A2s", "dB")
+_PLAIN = ("h", "%", "", "A2s", "dB", "dBV", "dBuV")
 
 
 def unit_of(key: str) -> str:
