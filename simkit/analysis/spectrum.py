@@ -67,18 +67,18 @@ def resample(t: np.ndarray, y: np.ndarray, t0: float, t1: float, n: int) -> np.n
     return np.interp(grid, t, y)
 
 
-def detrend(y: np.ndarray) -> np.ndarray:
-    """y less the straight line that takes it from its first sample to where the next period would start.
+def periodic(t: np.ndarray, y: np.ndarray, t0: float, t1: float, n: int, remove_drift: bool) -> np.ndarray:
+    """:func:`resample`, and with ``remove_drift`` less the straight line from y(t0) to y(t1).
 
-    For a window that is not quite periodic (a key-down interval, where the output still droops),
-    the drift would otherwise appear as a sawtooth with every harmonic at 1/k of its size.
+    For a window that is not quite periodic (a key-down interval, where the output still droops;
+    a run still settling) the drift y(t1) - y(t0) would otherwise appear as a sawtooth with every
+    harmonic at 1/k of its size, and its jump at the window's ends as content at every frequency.
     """
-    n = len(y)
-    if n < 3:
-        return y
-    # The line through the first sample and the last, extended by one step to the window's end.
-    slope = (y[-1] - y[0]) / (n - 1)
-    return y - slope * np.arange(n)
+    yy = resample(t, y, t0, t1, n)
+    if not remove_drift:
+        return yy
+    drift = float(np.interp(t1, t, y) - np.interp(t0, t, y))
+    return yy - drift * np.arange(n) / n
 
 
 def harmonics(t: np.ndarray, y: np.ndarray, t0: float, t1: float, fundamental: float, count: int = HARMONICS,
@@ -94,7 +94,7 @@ def harmonics(t: np.ndarray, y: np.ndarray, t0: float, t1: float, fundamental: f
     fundamental : float
         The source frequency, Hz.
     remove_drift : bool
-        Take out a straight-line drift over the window first (:func:`detrend`).
+        Take out a straight-line drift over the window first (:func:`periodic`).
 
     Returns
     -------
@@ -103,9 +103,7 @@ def harmonics(t: np.ndarray, y: np.ndarray, t0: float, t1: float, fundamental: f
     """
     periods = max(round((t1 - t0) * fundamental), 1)
     n = GRID_PER_PERIOD * periods
-    yy = resample(t, y, t0, t1, n)
-    if remove_drift:
-        yy = detrend(yy)
+    yy = periodic(t, y, t0, t1, n, remove_drift)
     spec = np.fft.rfft(yy) / n
     out = []
     for k in range(1, count + 1):
@@ -115,13 +113,24 @@ def harmonics(t: np.ndarray, y: np.ndarray, t0: float, t1: float, fundamental: f
     return out
 
 
+def above(t: np.ndarray, y: np.ndarray, t0: float, t1: float, f_low: float, samples: int) -> tuple[np.ndarray,
+                                                                                                   np.ndarray]:
+    """The content of y above ``f_low`` over [t0, t1] as a waveform: (uniform times, values), drift taken out."""
+    n = max(samples, 8)
+    yy = periodic(t, y, t0, t1, n, remove_drift=True)
+    spec = np.fft.rfft(yy)
+    spec[np.fft.rfftfreq(n, d=(t1 - t0) / n) <= f_low] = 0.0
+    return t0 + (t1 - t0) * np.arange(n) / n, np.fft.irfft(spec, n)
+
+
 def band_rms(t: np.ndarray, y: np.ndarray, t0: float, t1: float, f_low: float, samples: int) -> float:
     """RMS of the content of y above ``f_low`` over [t0, t1] (Parseval on a uniform grid of ``samples``).
 
     The window should hold whole periods of every slow component (the source's harmonics), so
-    that none of them leaks above ``f_low``.
+    that none of them leaks above ``f_low``; a straight-line drift over it (a run that is not
+    quite periodic yet) is taken out first, or its jump at the window's ends would count as hash.
     """
-    yy = resample(t, y, t0, t1, max(samples, 8))
+    yy = periodic(t, y, t0, t1, max(samples, 8), remove_drift=True)
     n = len(yy)
     spec = np.fft.rfft(yy) / n
     freqs = np.fft.rfftfreq(n, d=(t1 - t0) / n)

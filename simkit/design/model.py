@@ -101,6 +101,11 @@ class Rectifier:
         if "balancing_rating" in t and "balancing" not in t:
             raise rd.fail(f"{path}.balancing_rating", "needs balancing (the resistance across each stage capacitor)")
 
+    def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        if self.snubber is not None and self.diode.is_vacuum:
+            raise rd.fail(f"{path}.snubber", "a tube rectifier stores no charge to snap off at turn-off, so simkit "
+                          "does not model a snubber across its plates; fit one across the winding ([source] snubber)")
+
 
 def _filter_rating(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> PartRating:
     part = next(k for k in ("c", "l", "r") if table is not None and k in table)
