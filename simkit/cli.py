@@ -26,12 +26,19 @@ def _load(design: str, overrides: tuple[str, ...]):  # type: ignore[no-untyped-d
     return load_design(design, overrides)
 
 
-def _simulate(design, vscale: float = 1.0, hash: bool | None = None):  # type: ignore[no-untyped-def]
+def _simulate(design, vscale: float = 1.0):  # type: ignore[no-untyped-def]
     from simkit.pipeline import simulate
 
-    if hash is None:  # as the design says
-        return simulate(design, vscale=vscale)
-    return simulate(design, vscale=vscale, hash=hash)
+    return simulate(design, vscale=vscale)
+
+
+def _simulate_with(design, vscale: float, hash_: bool | None):  # type: ignore[no-untyped-def]
+    """``_simulate``, with the high-frequency analysis forced on or off when ``--hash``/``--no-hash`` says so."""
+    if hash_ is None:  # as the design says
+        return _simulate(design, vscale)
+    from simkit.pipeline import simulate
+
+    return simulate(design, vscale=vscale, hash=hash_)
 
 
 HASH_HELP = ("With the high-frequency analysis (diode turn-off, ringing, hash at the output), or without it; "
@@ -98,7 +105,7 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
         if out_dir:  # opened (created, locked, proved writable) before the simulation
             out = stack.enter_context(OutputDir(out_dir, force=force))
             out.check(["result.json", "deck.cir", "waveforms.png"])
-        result = _simulate(d, vscale, hash_)
+        result = _simulate_with(d, vscale, hash_)
         if vscale != 1.0:
             result.warnings.insert(0, f"simulated at {mains} mains: the source EMF x {vscale:g}")
         _warn(result)
@@ -192,7 +199,7 @@ def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: 
     text = read_design_text(design)  # the file as written, for the appendix (read once, safely)
     with OutputDir(out_dir or default_out_dir(design), force=force) as out:
         out.check(["report.md", "report.html"])
-        result = _simulate(d, hash=hash_)
+        result = _simulate_with(d, 1.0, hash_)
         _warn(result)
         checks, check_error = run_checks(d)
         if check_error:

@@ -19,9 +19,14 @@ The step: ngspice's maximum time step is the smallest of
   estimated reverse voltage.
 
 Within it ngspice's truncation-error control takes steps as short as each turn-off needs.
-The integration is the trapezoid rule: it keeps an L-C ring's energy, where Gear's method
-damps it (measured here: an L = 10 mH, C = 10 pF, R = 20 ohm ring, 316 V at the start,
-should fall to 116 V after 1 ms; the trapezoid rule gave 120 V, Gear 0.85 V; docs/engine-notes.md#hf-step).
+Where inductance feeds the diodes the integration is the trapezoid rule: it keeps an L-C
+ring's energy, where Gear's method damps it (measured here: an L = 10 mH, C = 10 pF,
+R = 20 ohm ring, 316 V at the start, should fall to 116 V after 1 ms; the trapezoid rule gave
+120 V, Gear 0.85 V; docs/engine-notes.md#hf-step).  With no series inductance nothing rings
+through the winding, and the diodes are commutated hard (an inverter's edge through its output
+resistance): there the engine's safer options (Gear's method, reltol 1e-3, gmin, rshunt), which
+the trapezoid rule could not replace (measured here: "timestep too small" at a modified-sine
+edge, also with Gear alone at reltol 1e-5 to 1e-3).
 """
 
 from __future__ import annotations
@@ -29,11 +34,12 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from simkit.analysis.runs import Run, end_nodes, run_span
+from simkit.analysis.runs import Run, end_nodes, run_span, transient
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine
+from simkit.errors import SimulationError
 from simkit.netlist.build import SNUB_C, build_circuit
-from simkit.netlist.circuit import Circuit
+from simkit.netlist.circuit import Circuit, render
 from simkit.parts.diodes import junction_capacitance
 
 #: Periods of the high-frequency run: the first settles the diodes' charge and the ringing, the last is measured.
@@ -53,6 +59,7 @@ class HighFreqRun:
     window: tuple[float, float]  # s, the measured (last) period, in the run's time
     step: float  # s, the maximum time step
     ring_estimate_hz: float  # the ring the step was chosen for (0: none expected)
+    method: str = "trap"  # ngspice's integration method
 
 
 def ring_estimate(design: Design, piv: float = 0.0) -> float:
@@ -123,5 +130,13 @@ def high_frequency(engine: Engine, design: Design, steady: Run, steady_circuit: 
     ics = {k: v for k, v in steady.ics.items() if not k.startswith("v(")}
     ics.update(end_nodes(steady_circuit, steady.waves))
     steps = max(math.ceil(T / tmax - 1e-9), 1)
-    run = run_span(engine, design, circuit, HF_PERIODS * T, ics, steps, meas=saved(circuit))
-    return HighFreqRun(run, circuit, ((HF_PERIODS - 1) * T, HF_PERIODS * T), T / steps, f_ring)
+    method = "trap" if design.source.inductance > 0 else "gear"
+    # With nothing to ring, the engine's safer options (Gear, reltol 1e-3, gmin, rshunt) take the hard
+    # commutation an inverter's edge gives; with inductance the trapezoid rule at the design's reltol.
+    tran = transient(design, circuit, HF_PERIODS * T, steps, safe=method == "gear")
+    deck = render(circuit, tran, ics, saved(circuit))
+    try:
+        run = Run(deck, HF_PERIODS * T, engine.run(deck, HF_PERIODS * T), ics, steps=steps)
+    except SimulationError:  # once more with the engine's safer options (and its message when that fails)
+        run = run_span(engine, design, circuit, HF_PERIODS * T, ics, steps, meas=saved(circuit))
+    return HighFreqRun(run, circuit, ((HF_PERIODS - 1) * T, HF_PERIODS * T), T / steps, f_ring, method)

@@ -173,8 +173,8 @@ class HashResult:
 
     def to_json(self) -> dict[str, Any]:
         return {"step_s": self.hf.step, "periods": HF_PERIODS, "ring_estimate_hz": self.hf.ring_estimate_hz,
-                "retried": self.hf.run.retried, "snubber_dissipation_w": dict(self.snubber_dissipation_w),
-                "notes": list(self.notes)}
+                "method": self.hf.method, "retried": self.hf.run.retried,
+                "snubber_dissipation_w": dict(self.snubber_dissipation_w), "notes": list(self.notes)}
 
 
 def wants_hash(design: Design, asked: bool | None = None) -> bool:
@@ -226,9 +226,9 @@ def attach_hash(engine: Engine, result: RunResult, vscale: float = 1.0, asked: b
         peaks[d.name] = float(np.max(vrev[sel]))
         settled = result.part(d.name, DiodeResult).piv_v
         floor = max(RING_FLOOR * settled, 0.1)
-        found = [measure_ring(w.time, vrev, t, hf.ring_estimate_hz, floor, RING_SPAN * T)
-                 for t in turn_offs(w.time, w.i(d.sense), a, b)]
-        ring = strongest([r for r in found if r.rings]) or Ring(a, math.nan, 0.0, math.nan, 0)
+        offs = turn_offs(w.time, w.i(d.sense), a, b)
+        found = [measure_ring(w.time, vrev, t, hf.ring_estimate_hz, floor, RING_SPAN * T) for t in offs]
+        ring = strongest([r for r in found if r.rings]) or Ring(offs[0] if offs else a, math.nan, 0.0, math.nan, 0)
         rings[d.name] = ring
         part = result.part(d.name, DiodeResult)
         part.ring_frequency_hz = ring.frequency_hz
@@ -244,7 +244,7 @@ def attach_hash(engine: Engine, result: RunResult, vscale: float = 1.0, asked: b
     samples = int(min(1 << 21, max(8192, 2 * (b - a) / hf.step)))
     hash_rms = spectrum.band_rms(w.time, w.v(hf.circuit.output), a, b, design.simulation.hash_band, samples)
     notes: list[str] = []
-    if hf.run.retried:
+    if hf.run.retried and hf.method == "trap":
         notes.append("the high-frequency run needed safer options (method=gear), which damp ringing: the ring "
                      "figures are too low")
     slow = [r for r in rings.values() if math.isfinite(r.decay_s) and r.decay_s > T / 4]

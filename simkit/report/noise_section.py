@@ -97,6 +97,7 @@ def add_section(doc: Document, result: RunResult) -> list[str]:
     if h.rings:
         png, svg = plots.ringing_figure(result)
         doc.image(RINGING_IMAGE, png, svg, "The turn-off of the diode with the strongest ring, and the output's "
-                  f"content above {band} over the measured period")
+                  f"content above {band} over the measured period (through an ideal high-pass filter: the small "
+                  "ripples either side of a sharp event are the filter's own)")
         images.append(RINGING_IMAGE)
     return images

@@ -888,8 +888,8 @@ def ringing_figure(result: RunResult) -> tuple[bytes, bytes]:
         note(ax, f"RMS {eng(h.hash_rms_v, 'V')} ({result.metrics['hash_dbuv']:.1f} dBµV)", "upper left")
         span_v = float(np.max(np.abs(hash_wave))) or 1e-12
         ax.set_ylim(-1.1 * span_v, 1.5 * span_v)
-        where = _where(result, hf.circuit.output)
-        style_axes(ax, f"Hash: the output's content above {eng(band, 'Hz')} over one period ({where})",
+        style_axes(ax, f"Hash: the output's content above {eng(band, 'Hz')} over one period (node "
+                   f"{hf.circuit.output})",
                    f"time within the measured period ({_freq(result)} source)", "s", "hash voltage", "V")
         legend_outside(ax)
         return figure_bytes(fig)

@@ -26,6 +26,8 @@ def unit_of(key: str) -> str:
 
 def show(key: str, value: Any) -> str:
     """A figure's value with its unit, as tables show it ("n/a" for a figure not computed)."""
+    if value is None:  # a figure with no value (no ring to measure), as run --json gives it
+        return "n/a"
     if isinstance(value, bool) or not isinstance(value, float | int):
         return str(value)
     if not math.isfinite(value):
