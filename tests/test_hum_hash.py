@@ -28,6 +28,7 @@ from simkit.parts import diodes
 from simkit.pipeline import DiodeResult, simulate
 from simkit.pipeline.noise import e12, suggest_snubber, wants_hash
 from tests.conftest import EXAMPLES, write_design
+from tests.test_plots import check_house_style, drawn
 
 HALF_WAVE_RINGING = """\
 title = "Test: half-wave with leakage inductance and a snubber across the diode"
@@ -473,3 +474,44 @@ def test_the_schematic_draws_every_snubber(tmp_path: Path, topology: str) -> Non
         assert own and all("design" in sch.labels[n] for n in own)
         auto = [e.name for e in c.elements if e.name.startswith(("CSW", "CSR"))]
         assert all("added by simkit" in sch.labels[n] for n in auto)
+
+
+# -- the plots keep the house style ---------------------------------------------------------------
+
+
+@pytest.fixture
+def caught(monkeypatch: pytest.MonkeyPatch):  # type: ignore[no-untyped-def]
+    """The figures the plot functions make, kept open instead of written (as tests/test_plots.py does)."""
+    from simkit.report import plots
+
+    figures: list = []  # type: ignore[type-arg]
+    monkeypatch.setattr(plots, "figure_bytes", lambda fig, tight=False: (figures.append(fig), (b"", b""))[1])
+    yield figures
+    import matplotlib.pyplot as plt
+
+    for fig in figures:
+        plt.close(fig)
+
+
+@pytest.mark.ngspice
+def test_the_spectrum_and_ringing_plots_keep_the_house_style(tmp_path: Path, caught: list) -> None:  # type: ignore[type-arg]
+    # Our house style (derived here): labels in words with their unit, legends outside the data; the spectrum
+    # on a log frequency axis with one bar group per harmonic, levels in dBV.
+    from simkit.report import plots
+
+    r = simulate(load_design(str(write_design(tmp_path, HALF_WAVE_RINGING.format(c="1n", r="10"))), ()))
+    plots.hum_spectrum_figure(r)
+    plots.ringing_figure(r)
+    spectrum_fig, ringing_fig = (drawn(f) for f in caught)
+    (ax,) = spectrum_fig.axes
+    assert ax.get_xscale() == "log"
+    assert re.fullmatch(r"hum level \(dBV\)", ax.get_ylabel())
+    assert ax.get_xlabel().endswith("(Hz)") and "harmonics" in ax.get_xlabel()
+    bars = [p for p in ax.patches if p.get_height() > 0]
+    assert len(bars) >= 8  # f .. 10f of the one node, all within 60 dB of the largest
+    tops = sorted(ax.get_ylim())
+    assert tops[1] >= r.metrics["hum_dbv"]
+    renderer = spectrum_fig.canvas.get_renderer()
+    assert ax.get_legend().get_window_extent(renderer).x0 >= ax.get_window_extent(renderer).x1 - 0.5
+    check_house_style(ringing_fig)
+    assert "Turn-off of D1" in ringing_fig.axes[0].get_title(loc="left")

@@ -60,7 +60,8 @@ def _result_lines(result: RunResult, what: str) -> list[str]:
     h = result.hash
     if h is not None and h.snubber_dissipation_w:
         lines.append("  snubber resistors, with the ringing: " + ", ".join(
-            f"{n} {eng(p, 'W')}" for n, p in h.snubber_dissipation_w.items()))
+            f"{n} {eng(p, 'W')}" + (" (simkit's)" if n.startswith(("RSW", "RSR")) else "")
+            for n, p in h.snubber_dissipation_w.items()))
     return lines
 
 
@@ -84,7 +85,10 @@ def hash_text(study: HashStudy) -> str:
                      f"{eng(s.snubber.r, 'Ω')}")
         lines.append(f"  from L = {eng(s.inductance_h, 'H')} (the winding's leakage inductance) ringing with the "
                      f"diode's {eng(s.capacitance_f, 'F')} at {eng(s.frequency_hz, 'Hz')}: C about "
-                     f"{SNUBBER_C_RATIO:g} x that (rounded up to the E12 series), R = sqrt(L/C) (common practice)")
+                     f"{SNUBBER_C_RATIO:g} x that (rounded up to the E12 series), R = sqrt(L/C_J) (common practice)")
+        own = d.rectifier.snubber
+        if own is not None:
+            lines.append(f"  in place of the design's own ({eng(own.c, 'F')}, {eng(own.r, 'Ω')}) in the figures below")
         lines.append(f'  in the design file: [rectifier] snubber = {{ c = "{spice(s.snubber.c)}", '
                      f'r = "{spice(s.snubber.r)}" }}')
         lines.append("  rate each capacitor for the diode's full reverse voltage with margin, and each resistor "
