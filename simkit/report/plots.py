@@ -775,7 +775,7 @@ def run_figure_bytes(result: RunResult, fmt: str = "png") -> bytes:
 
 # -- hum and hash ---------------------------------------------------------------------------------
 
-#: Levels more than this far below a panel's largest harmonic are not drawn (numerical dust), dB.
+#: Levels more than this far below a node's largest harmonic are not drawn (numerical dust), dB.
 SPECTRUM_RANGE = 60.0
 
 
@@ -785,7 +785,10 @@ def _spectrum_panel(ax: Any, spectra: dict[str, Sequence[Any]], names: dict[str,
     n = len(spectra)
     tops = [level(h) for hs in spectra.values() for h in hs]
     top = max(tops)
-    floor = 10.0 * math.floor((top - SPECTRUM_RANGE) / 10.0)
+    # Each node shows its own harmonics down to SPECTRUM_RANGE below its largest: a quiet output's
+    # hum stays visible beside a loud reservoir.
+    own = {node: max(level(h) for h in hs) - SPECTRUM_RANGE for node, hs in spectra.items()}
+    floor = 10.0 * math.floor(min(own.values()) / 10.0)
     half = 0.018  # half the group's width, in decades: groups of the 9th and 10th harmonics stay apart
     width = 2 * half / max(n, 1)
     for j, (node, hs) in enumerate(spectra.items()):
@@ -793,7 +796,7 @@ def _spectrum_panel(ax: Any, spectra: dict[str, Sequence[Any]], names: dict[str,
         lv = np.array([level(h) for h in hs])
         left = f * 10 ** (-half + j * width)
         right = left * 10 ** (0.85 * width)
-        shown = lv > floor
+        shown = lv > max(own[node], floor)
         best = max(hs, key=lambda h: h.rms)
         ax.bar(left[shown], (lv - floor)[shown], width=(right - left)[shown], bottom=floor, align="edge",
                color=PALETTE[j % len(PALETTE)], label=f"{names.get(node, node)}\nlargest {level(best):.1f} {unit} "

@@ -721,6 +721,8 @@ class _Sheet:
             here = (x, height)
         d1 = self.diode_by_nodes("ac1", self.rect)
         x = max(here[0], self.frontier(height + 1e-3, math.inf)) + 0.4
+        if self.diode_snubber_items(d1.name):  # its snubber runs below the top line: clear of what is there
+            x = max(x, self.frontier(0.0, height - 1e-3) + 0.6)
         self.wire(here, (x, height))
         length = max(U, _measure(self.diode_label([d1.name]), PART_FONT)[0] + 2 * PAD)
         if self.vacuum:
@@ -1259,7 +1261,7 @@ def _tall(design: Design, circuit: Circuit) -> bool:
     """Whether the ladder needs two symbols' height: a snubber in it, or a series regulator's reference."""
     names = {e.name for e in circuit.elements}
     reg = design.regulator
-    half_wave_snubber = design.rectifier.topology == "half-wave" and "CSW1" in names
+    half_wave_snubber = design.rectifier.topology == "half-wave" and bool({"CSW1", "CSS1", "CSD1"} & names)
     return "CSR" in names or half_wave_snubber or (reg is not None and reg.kind == "series")
 
 
