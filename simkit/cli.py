@@ -32,6 +32,20 @@ def _simulate(design, vscale: float = 1.0):  # type: ignore[no-untyped-def]
     return simulate(design, vscale=vscale)
 
 
+def _simulate_with(design, vscale: float, hash_: bool | None):  # type: ignore[no-untyped-def]
+    """``_simulate``, with the high-frequency analysis forced on or off when ``--hash``/``--no-hash`` says so."""
+    if hash_ is None:  # as the design says
+        return _simulate(design, vscale)
+    from simkit.pipeline import simulate
+
+    return simulate(design, vscale=vscale, hash=hash_)
+
+
+HASH_HELP = ("With the high-frequency analysis (diode turn-off, ringing, hash at the output), or without it; "
+             "by default as [simulation] hash says, or when the design has a snubber or an ultrafast diode fed "
+             "through leakage inductance.")
+
+
 def _mains_scale(design: Any, mains: str) -> float:
     """1 +- the design's mains tolerance for --mains high/low."""
     if mains == "nominal":
@@ -80,8 +94,9 @@ def cli(ctx: click.Context) -> None:
 @click.option("--probe", "probes", multiple=True, metavar="NAME", help="With --out: also write this waveform as "
               "probe-NAME.csv and .png: a node (out), a part's current (D1) or voltage (v(C1)); repeatable. "
               "`simkit netlist DESIGN --nodes` lists the names.")
+@click.option("--hash/--no-hash", "hash_", default=None, help=HASH_HELP)
 def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | None, force: bool,
-        mains: str, probes: tuple[str, ...]) -> None:
+        mains: str, probes: tuple[str, ...], hash_: bool | None) -> None:
     """Simulate a design and print its figures."""
     from simkit.report.outputs import OutputDir
     from simkit.report.text import run_table
@@ -94,7 +109,7 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
         if out_dir:  # opened (created, locked, proved writable) before the simulation
             out = stack.enter_context(OutputDir(out_dir, force=force))
             out.check(["result.json", "deck.cir", "waveforms.png", *probe_files])
-        result = _simulate(d, vscale)
+        result = _simulate_with(d, vscale, hash_)
         if vscale != 1.0:
             result.warnings.insert(0, f"simulated at {mains} mains: the source EMF x {vscale:g}")
         _warn(result)
@@ -216,7 +231,8 @@ def demo(out_dir: str, force: bool) -> None:
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), help="Folder for the report "
               "(default: DESIGN's name with -report, e.g. amp-report/).")
 @click.option("--force", is_flag=True, help="Replace files simkit did not write.")
-def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: bool) -> None:
+@click.option("--hash/--no-hash", "hash_", default=None, help=HASH_HELP)
+def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: bool, hash_: bool | None) -> None:
     """Write a report for documents: report.md, a self-contained report.html, the schematic,
     the verdicts of the stress checks, the plots (PNG and SVG) and the deck."""
     from simkit.design.loader import read_design_text
@@ -227,7 +243,7 @@ def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: 
     text = read_design_text(design)  # the file as written, for the appendix (read once, safely)
     with OutputDir(out_dir or default_out_dir(design), force=force) as out:
         out.check(["report.md", "report.html"])
-        result = _simulate(d)
+        result = _simulate_with(d, 1.0, hash_)
         _warn(result)
         checks, check_error = run_checks(d)
         if check_error:
@@ -237,6 +253,24 @@ def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: 
         click.echo(f"simkit: wrote report.md, report.html, {images} figures (PNG and SVG) and deck.cir in "
                    f"{out.path}", err=True)
         click.echo(str(out.path / "report.html"))
+
+
+@cli.command("hash")
+@click.argument("design", type=click.Path())
+@click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
+@click.option("--json", "as_json", is_flag=True, help="Print exactly one JSON document on stdout.")
+def hash_command(design: str, overrides: tuple[str, ...], as_json: bool) -> None:
+    """Diode turn-off ringing and hash: the design with its diodes' real recovery and capacitance, a
+    snubber across each diode worked out for it, and the figures with that snubber."""
+    from simkit.pipeline.hash_study import hash_study
+    from simkit.report.hash_text import hash_text
+
+    d = _load(design, overrides)
+    study = hash_study(d)
+    if as_json:
+        click.echo(json.dumps(study.to_json(), indent=2))
+    else:
+        click.echo(hash_text(study), nl=False)
 
 
 @cli.command()

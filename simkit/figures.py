@@ -15,7 +15,7 @@ class Figure:
     """One reported quantity."""
 
     name: str  # as in run --json; ends with its unit
-    unit: str  # "V", "A", "W", "s", "h", "Hz", "VA", "A2s", "F", "H", "ohm", "%", "dB", or "" (a ratio)
+    unit: str  # "V", "A", "W", "s", "h", "Hz", "VA", "A2s", "F", "H", "ohm", "%", "dB", "dBV", "dBuV", or ""
     meaning: str
     analysis: str = "steady state"  # which run makes it
     words: str = ""  # a short name for axis labels and legends ("output voltage"); the meaning when empty
@@ -26,6 +26,7 @@ def _table(*figures: Figure) -> dict[str, Figure]:
 
 
 _S, _ON, _BAT, _KEY, _REG = "steady state", "switch-on", "battery", "steady keying", "regulator"
+_HF = "high-frequency"
 
 #: The run's figures, in the order tables print them.
 FIGURES: dict[str, Figure] = _table(
@@ -97,6 +98,19 @@ FIGURES: dict[str, Figure] = _table(
     Figure("line_input_change_pct", "%", "the regulator input's change over the same range, for comparison", _REG),
     Figure("ripple_rejection_db", "dB", "20 log10 of input ripple over output ripple (peak-to-peak)", _REG,
            words="ripple rejection"),
+    # Hum: the largest of the first ten harmonics of the source frequency in the output (every run).
+    Figure("hum_dbv", "dBV", "level of the output's largest hum harmonic, dB re 1 V RMS", words="hum level"),
+    Figure("hum_frequency_hz", "Hz", "frequency of that harmonic", words="hum frequency"),
+    Figure("hum_keydown_dbv", "dBV", "the same over the last whole period of the longest key-down", _KEY,
+           words="key-down hum level"),
+    Figure("hum_keydown_frequency_hz", "Hz", "frequency of that harmonic", _KEY),
+    Figure("battery_hum_a", "A", "RMS of the battery current's largest harmonic of the source frequency", _BAT,
+           words="battery current hum"),
+    Figure("battery_hum_frequency_hz", "Hz", "frequency of that harmonic", _BAT),
+    # Hash: the high-frequency analysis (run --hash, simkit hash, [simulation] hash).
+    Figure("hash_rms_v", "V", "RMS of the output's content above simulation.hash_band, with the diodes' real "
+           "turn-off", _HF, words="hash at the output"),
+    Figure("hash_dbuv", "dBuV", "hash_rms_v in dB re 1 uV RMS", _HF, words="hash level"),
 )
 
 #: Per-part quantities (``parts`` of ``run --json``): each part holds the ones that apply to it.
@@ -130,6 +144,10 @@ PART_FIGURES: dict[str, Figure] = _table(
     Figure("current_min_a", "A", "lowest current"),
     Figure("current_max_a", "A", "highest current"),
     Figure("switch_on_voltage_max_v", "V", "highest voltage across it during switch-on", _ON),
+    Figure("ring_frequency_hz", "Hz", "frequency of the ringing after the diode turns off", _HF),
+    Figure("ring_peak_v", "V", "how far the reverse voltage goes above the settled PIV (piv_v) with the ringing",
+           _HF),
+    Figure("ring_decay_s", "s", "time for the ringing to fall to 1/e", _HF),
 )
 
 

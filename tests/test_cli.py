@@ -29,8 +29,13 @@ def test_run_json_is_one_document_with_every_figure(tmp_path: Path, capsys: pyte
     code, out, err = call(["run", str(p), "--json"], capsys)
     assert code == 0, err
     doc = json.loads(out)  # exactly one JSON document: json.loads refuses trailing text
-    assert set(doc) == {"simkit", "design", "inputs", "metrics", "parts", "warnings"}
+    assert set(doc) == {"simkit", "design", "inputs", "metrics", "parts", "warnings", "ripple_harmonics"}
     assert SPEC_FIGURES <= set(doc["metrics"])
+    # The hum spectrum: ten harmonics of the 50 Hz source at every filter node and the output.
+    hum = doc["ripple_harmonics"]
+    assert set(hum) == {"rect", "out"}
+    assert [h["frequency_hz"] for h in hum["out"]] == [50.0 * k for k in range(1, 11)]
+    assert all(set(h) == {"frequency_hz", "rms_v", "dbv"} for h in hum["out"])
     assert all(isinstance(v, float) for v in doc["metrics"].values())
     assert {"D1", "D2", "D3", "D4", "C1", "C2", "V1", "RLOAD", "RBLEED", "R1"} <= set(doc["parts"])
     assert doc["design"] == "Test: bridge into CRC"

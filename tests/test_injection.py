@@ -319,7 +319,7 @@ FIELDS: list[Field] = [
     *(Field(f"simulation.{k}", BRIDGE_TOML + "[simulation]\n#\n", "#\n", f"{k} = {{v}}\n", good)
       for k, good in (("switch_on_phase", "90"), ("steps_per_period", "1000"), ("settle_tolerance", "1e-4"),
                       ("max_settle_time", "8"), ("switch_on_time", "200m"), ("reltol", "1e-4"),
-                      ("max_points", "1e6"))),
+                      ("max_points", "1e6"), ("hash", "false"), ("hash_band", "10k"))),
 ]
 
 #: Free text: these may be accepted, and then must be harmless.

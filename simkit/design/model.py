@@ -39,6 +39,7 @@ from simkit.design.loads import (
     StepsLoad,
     TubeLoad,
 )
+from simkit.design.snubber import Snubber, snubber_key
 from simkit.design.sources import SOURCE_KINDS, Battery, InverterSource, SineSource, Source, TransformerSource
 from simkit.design.vocab import Reader, key
 
@@ -46,8 +47,8 @@ __all__ = [
     "TOPOLOGIES", "Battery", "Bleeder", "CheckPolicy", "CurrentLoad", "Design", "DiodeModel", "DiodeRatings",
     "FilterSection", "GlowSpec", "InverterSource", "KeyState", "KeyedLoad", "Load", "LoadBase", "PartRating",
     "PassDevice", "Rectifier", "Regulator", "ResistorLoad", "SeriesRegulator", "ShuntRegulator",
-    "SimulationOptions", "SineSource", "Source", "SpreadOptions", "StepsLoad", "TransformerSource", "TubeLoad",
-    "TubeRatings", "VacuumDiode", "Zener",
+    "SimulationOptions", "SineSource", "Snubber", "Source", "SpreadOptions", "StepsLoad", "TransformerSource",
+    "TubeLoad", "TubeRatings", "VacuumDiode", "Zener",
 ]
 
 Topology = Literal["half-wave", "centre-tap", "bridge", "doubler", "cascade"]
@@ -82,6 +83,7 @@ class Rectifier:
     balancing_rating: PartRating | None = key("balancing_rating", "table", 'power rating of each balancing '
                                               'resistor, { w = "1" }', None, reader=rating_reader("r"),
                                               of=(PartRating,))
+    snubber: Snubber | None = snubber_key("each rectifier diode")
 
     @classmethod
     def refuse(cls, rd: Reader, t: Mapping[str, Any], path: str) -> None:
@@ -98,6 +100,11 @@ class Rectifier:
                           "balancing_rating"), path, "belongs to the stage capacitors of a doubler or cascade")
         if "balancing_rating" in t and "balancing" not in t:
             raise rd.fail(f"{path}.balancing_rating", "needs balancing (the resistance across each stage capacitor)")
+
+    def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        if self.snubber is not None and self.diode.is_vacuum:
+            raise rd.fail(f"{path}.snubber", "a tube rectifier stores no charge to snap off at turn-off, so simkit "
+                          "does not model a snubber across its plates; fit one across the winding ([source] snubber)")
 
 
 def _filter_rating(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> PartRating:
@@ -316,6 +323,12 @@ class SimulationOptions:
     max_points: float = key("max_points", "", "refuse to simulate when the estimated time points of all analyses "
                             "exceed this (about a minute of simulation per 2e7 on a typical PC)", 2e7, shown="2e7",
                             minimum=1e4, maximum=1e10, label="time-point limit")
+    hash: bool | None = key("hash", "bool", "run the high-frequency analysis (diode turn-off, ringing, hash at the "
+                            "output) with every `simkit run`: true or false; by default it runs when the design has "
+                            "a snubber of its own, or an ultrafast diode fed through leakage inductance", None,
+                            shown="automatic")
+    hash_band: float = key("hash_band", "Hz", "hash_rms_v is the output's content above this frequency", 10e3,
+                           shown="10k", above=0, maximum=1e8, label="hash band edge")
 
     def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
         if not math.isfinite(self.switch_on_phase):

@@ -15,6 +15,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, ClassVar
 
+from simkit.design.snubber import Snubber, snubber_key
 from simkit.design.vocab import Reader, key, show
 from simkit.units import UnitError, parse_percent, parse_value
 
@@ -69,6 +70,7 @@ class SineSource(_Periodic):
     mains_tolerance: float | None = _tolerance()
     rated_current: float | None = key("rated_current", "A", "the winding's RMS current rating (each half for "
                                       "centre-tap), for `simkit check`", None, shown="none", above=0, maximum=1e3)
+    snubber: Snubber | None = snubber_key("the winding (each half for centre-tap)")
 
     transformer: ClassVar[None] = None
     inverter: ClassVar[None] = None
@@ -109,6 +111,7 @@ class TransformerSource(_Periodic):
     centre_tap: bool = key("centre_tap", "bool", "the secondary has a centre tap (needed for topology centre-tap)",
                            False, shown="false")
     mains_tolerance: float | None = _tolerance()
+    snubber: Snubber | None = snubber_key("the secondary (each half for centre-tap)")
     topology: str = "bridge"  # the rectifier it feeds (a centre tap splits the winding): set by the reader
 
     inverter: ClassVar[None] = None
@@ -257,6 +260,7 @@ class InverterSource(_Periodic):
     edge_time_given: float | None = key("edge_time", "s", "rise and fall time of square and modified-sine edges",
                                         None, shown="period / 500", above=0)
     mains_tolerance: float | None = _tolerance()
+    snubber: Snubber | None = snubber_key("the inverter's output")
 
     transformer: ClassVar[None] = None
     rated_current: ClassVar[None] = None

@@ -5,6 +5,12 @@ Robust defaults (docs/engine-notes.md): every floating winding terminal is tied 
 damps) sits wherever inductance feeds the diodes (leakage inductance, or a choke-input filter;
 #snubbers); diodes carry TT = 0 and CJO = 0 unless the design says otherwise (#tt-cjo).
 
+A design's own snubbers (``[rectifier] snubber``, ``[source] snubber``) are ``CSD1``/``RSD1`` ...
+across each diode and ``CSS1``/``RSS1`` ... across each winding; a design that fits its own
+snubbers takes charge of the damping, so simkit's snubber across the winding is left out.  With
+``dynamics=True`` (the high-frequency analysis) the silicon diodes get their real transit time and
+junction capacitance (:func:`simkit.parts.diodes.dynamics`).
+
 Node names: ``w1p`` EMF terminal, ``ac1``/``ac2`` winding terminals at the diodes,
 ``rect`` rectifier output, ``f1``, ``f2``... filter nodes, ``out`` the output.
 
@@ -38,6 +44,7 @@ from simkit.design.model import (
     StepsLoad,
     TubeLoad,
 )
+from simkit.design.snubber import Snubber
 from simkit.netlist import drives
 from simkit.netlist.circuit import (
     CapRef,
@@ -49,6 +56,7 @@ from simkit.netlist.circuit import (
     ResRef,
     WindingRef,
 )
+from simkit.parts.diodes import dynamics as diode_dynamics
 from simkit.units import spice
 
 #: Resistance tying floating winding terminals to ground, ohm (docs/engine-notes.md#ties).
@@ -76,9 +84,15 @@ def zener_model(name: str, bv: float, rdyn: float) -> str:
     return f".model {name} D(is=1e-12 n=1 rs={spice(rdyn)} bv={spice(bv)} ibv=1m tt=0 cjo=0)"
 
 
-def diode_model_line(d: DiodeModel) -> str:
-    params = [f"is={spice(d.is_)}", f"n={spice(d.n)}", f"rs={spice(d.rs)}", f"tt={spice(d.tt)}",
-              f"cjo={spice(d.cjo)}"]
+#: Name prefixes of a design's own snubbers: across each diode, across each winding.
+DIODE_SNUBBER = "SD"
+SOURCE_SNUBBER = "SS"
+
+
+def diode_model_line(d: DiodeModel, dynamics: bool = False) -> str:
+    tt, cjo = diode_dynamics(d) if dynamics else (d.tt, d.cjo)
+    params = [f"is={spice(d.is_)}", f"n={spice(d.n)}", f"rs={spice(d.rs)}", f"tt={spice(tt)}",
+              f"cjo={spice(cjo)}"]
     if d.bv is not None:
         params.append(f"bv={spice(d.bv)}")
     return f".model {DIODE_MODEL} D({' '.join(params)})"
@@ -125,7 +139,9 @@ class _Builder:
         if node != plus:  # neither R nor L: a 0 ohm link keeps the node names stable
             self.c.add(Element(f"RW{index}", (node, plus), spice(1e-6), comment="winding link (no resistance given)"))
         self.c.windings.append(WindingRef(name, s.vrms * self.vscale, plus, minus, emf))
-        if s.inductance > 0:
+        if s.snubber is not None:
+            self.own_snubber(plus, minus, s.snubber, f"{SOURCE_SNUBBER}{index}", f"winding {index}")
+        elif s.inductance > 0 and self.d.rectifier.snubber is None:
             self.snubber(plus, minus, s.inductance, f"SW{index}")
 
     def inverter_emf(self, index: int, emf: str, minus: str, phase: float) -> None:
@@ -228,6 +244,14 @@ class _Builder:
         self.c.capacitors.append(CapRef(f"C{tag}", a, b, a, mid, "", SNUB_C, "snubber"))
         self.c.resistors.append(ResRef(f"R{tag}", mid, b, r, "snubber"))
 
+    def own_snubber(self, a: str, b: str, snub: Snubber, tag: str, across: str) -> None:
+        """A snubber the design fits (``C{tag}`` then ``R{tag}``, from ``a`` to ``b``)."""
+        mid = f"{tag.lower()}m"
+        self.c.add(Element(f"C{tag}", (a, mid), spice(snub.c), comment=f"snubber across {across} (design)", ic=0.0))
+        self.c.add(Element(f"R{tag}", (mid, b), spice(snub.r), comment=f"snubber across {across} (design)"))
+        self.c.capacitors.append(CapRef(f"C{tag}", a, b, a, mid, "", snub.c, "snubber"))
+        self.c.resistors.append(ResRef(f"R{tag}", mid, b, snub.r, "snubber"))
+
     def tie(self, node: str) -> None:
         name = f"RT{node.upper()}"
         self.c.add(Element(name, (node, "0"), spice(FLOAT_TIE), comment="ties a floating winding to ground"))
@@ -252,6 +276,8 @@ class _Builder:
             expr = f"I={spice(vac.perveance, 9)}*pow(max(v({inner},{cathode}),0),1.5){heat}"
             self.c.add(Element(f"BD{k}", (inner, cathode), expr, comment="plate cathode, i = P v^1.5"))
         self.c.diodes.append(DiodeRef(f"D{k}", f"VD{k}", anode, cathode))
+        if self.d.rectifier.snubber is not None:
+            self.own_snubber(anode, cathode, self.d.rectifier.snubber, f"{DIODE_SNUBBER}{k}", f"D{k}")
 
     def capacitor(self, plus: str, minus: str, value: float, esr: float, role: str) -> str:
         self.n_cap += 1
@@ -493,7 +519,8 @@ class _Builder:
 STEP_EDGE = 1e-3
 
 
-def build_circuit(design: Design, phase_deg: float = 0.0, vscale: float = 1.0, mode: str = "steady") -> Circuit:
+def build_circuit(design: Design, phase_deg: float = 0.0, vscale: float = 1.0, mode: str = "steady",
+                  dynamics: bool = False) -> Circuit:
     """Build the circuit of a design.
 
     Parameters
@@ -505,6 +532,9 @@ def build_circuit(design: Design, phase_deg: float = 0.0, vscale: float = 1.0, m
         Multiplies the source EMF (mains corners), e.g. 1.1 for +10 %.
     mode : str
         Which time functions are live (module docstring).
+    dynamics : bool
+        Silicon diodes with their real transit time and junction capacitance (the high-frequency
+        analysis), instead of TT = 0 and CJO = 0.
     """
     b = _Builder(design, phase_deg, vscale, mode)
     if design.battery is not None and design.source.inverter is not None and not design.source.inverter.regulated:
@@ -519,7 +549,7 @@ def build_circuit(design: Design, phase_deg: float = 0.0, vscale: float = 1.0, m
     b.loads()
     b.battery()
     if not design.rectifier.diode.is_vacuum:
-        circuit.models.append(diode_model_line(design.rectifier.diode))
+        circuit.models.append(diode_model_line(design.rectifier.diode, dynamics))
     circuit.output = "out"
     circuit.rectified = supply if last == "rect" else "rect"
     return circuit

@@ -79,12 +79,23 @@ def describe(name: str) -> str:
         ("model forward drop at IF(AV)",
          eng(diodes.forward_drop(p, r.ifav), "V") if r.ifav else "-"),
         ("SPICE model", f"IS={p.is_:g} N={p.n:g} RS={p.rs:g} TT=0 CJO=0 (our own fit)"),
+        *_dynamics_rows(p),
         ("source", p.source),
         ("see", f"{SOURCES_PAGE}#{p.sources_id}"),
     ]
     width = max(len(k) for k, _ in rows)
     out = [f"{p.name}: {p.description}"] + [f"  {k:<{width}}  {v}" for k, v in rows]
     return "\n".join(out) + "\n"
+
+
+def _dynamics_rows(p: diodes.DiodePart) -> list[tuple[str, str]]:
+    """The part's reverse recovery and junction capacitance, as the high-frequency analysis uses them."""
+    dyn = p.dynamics
+    if dyn is None:
+        return []
+    return [("high-frequency model", f"t_rr {eng(dyn.trr, 's')} -> TT={dyn.tt:.3g}; C_J {eng(dyn.cj, 'F')} at "
+             f"{diodes.CJ_VOLTS:g} V -> CJO={dyn.cjo:.3g} (simkit hash, run --hash)"),
+            ("  its source", dyn.source)]
 
 
 def _describe_tube(t: tubes.TubePart) -> str:

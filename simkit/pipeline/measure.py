@@ -18,6 +18,7 @@ from simkit.design.model import Design, ResistorLoad, StepsLoad
 from simkit.engine.ngspice import Waveforms
 from simkit.netlist.circuit import Circuit
 from simkit.pipeline.dynamic import keyed_figures, regulator_figures, step_figures
+from simkit.pipeline.noise import attach_hum, attach_snubbers
 from simkit.pipeline.results import (
     CapacitorResult,
     DiodeResult,
@@ -169,7 +170,10 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
                         "diode's own resistance; give the winding resistance for a real surge figure")
     if m["vout_dc_v"] < 0:
         warnings.append("the output is negative: check the topology and the load")
-    return RunResult(design, circuit, m, parts, warnings, steady, start, (t0, t1), keyed=keyed)
+    result = RunResult(design, circuit, m, parts, warnings, steady, start, (t0, t1), keyed=keyed)
+    attach_snubbers(result)
+    attach_hum(result)
+    return result
 
 
 def _surge_i2t(t: np.ndarray, i: np.ndarray, period: float, s0: float, s1: float) -> float:

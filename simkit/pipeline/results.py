@@ -14,6 +14,7 @@ from typing import Any, TypeVar
 from simkit import __version__
 from simkit.analysis.keyed import KeyedRun
 from simkit.analysis.runs import Run
+from simkit.analysis.spectrum import Harmonic
 from simkit.analysis.steady import SteadyState
 from simkit.design.model import Design
 from simkit.design.reader import design_to_inputs
@@ -39,6 +40,10 @@ class DiodeResult(PartResult):
     surge_peak_a: float
     surge_i2t_a2s: float
     switch_on_piv_v: float
+    # The high-frequency analysis (run --hash, simkit hash): the ring after turn-off.
+    ring_frequency_hz: float | None = None
+    ring_peak_v: float | None = None
+    ring_decay_s: float | None = None
 
 
 @dataclass
@@ -119,6 +124,11 @@ class RunResult:
     window: tuple[float, float] = (0.0, 0.0)
     keyed: KeyedRun | None = None
     extra: dict[str, Any] = field(default_factory=dict)
+    # Hum: the first ten harmonics at every filter node (steady state, key-down) and of the battery current.
+    ripple_harmonics: dict[str, list[Harmonic]] = field(default_factory=dict)
+    keydown_harmonics: dict[str, list[Harmonic]] = field(default_factory=dict)
+    battery_harmonics: list[Harmonic] = field(default_factory=list)
+    hash: Any = None  # simkit.pipeline.noise.HashResult when the high-frequency analysis ran
 
     def part(self, name: str, kind: type[P]) -> P:
         """One part's result, of the kind asked for (a KeyError when there is no such part)."""
@@ -132,7 +142,7 @@ class RunResult:
         return {k: v for k, v in self.parts.items() if isinstance(v, kind)}
 
     def to_json(self) -> dict[str, Any]:
-        return {
+        doc = {
             "simkit": __version__,
             "design": self.design.title,
             "inputs": design_to_inputs(self.design),
@@ -140,6 +150,20 @@ class RunResult:
             "parts": {k: v.to_json() for k, v in self.parts.items()},
             "warnings": list(self.warnings),
         }
+        doc.update(self._noise_json())
+        return doc
+
+    def _noise_json(self) -> dict[str, Any]:
+        """``ripple_harmonics`` (and at key-down, of the battery current) and the high-frequency run's settings."""
+        out: dict[str, Any] = {"ripple_harmonics": {n: [h.to_json() for h in hs]
+                                                    for n, hs in self.ripple_harmonics.items()}}
+        if self.keydown_harmonics:
+            out["ripple_harmonics_keydown"] = {n: [h.to_json() for h in hs] for n, hs in self.keydown_harmonics.items()}
+        if self.battery_harmonics:
+            out["battery_harmonics"] = [h.to_json("a") for h in self.battery_harmonics]
+        if self.hash is not None:
+            out["high_frequency"] = self.hash.to_json()
+        return out
 
     @property
     def deck(self) -> str:

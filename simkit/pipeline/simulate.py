@@ -21,6 +21,7 @@ from simkit.errors import DesignError
 from simkit.netlist.build import build_circuit, keying_drive
 from simkit.netlist.circuit import Circuit
 from simkit.pipeline.measure import figures
+from simkit.pipeline.noise import attach_hash, wants_hash
 from simkit.pipeline.results import RunResult
 
 #: Periodic states of recent designs (fingerprint, solution): the warm start of a sweep's next point.
@@ -90,14 +91,15 @@ def check_cost(design: Design, circuit: Circuit) -> list[plan.Cost]:
 
 
 def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0, regulation: bool = True,
-             warm: bool = False, progress: Progress | None = None) -> RunResult:
+             warm: bool = False, progress: Progress | None = None, hash: bool | None = None) -> RunResult:
     """Run the analyses of a design and compute every figure.
 
     The steady state first (its output voltage is the target the start-up run watches), then
     the start-up run from empty capacitors, then, for keyed loads, steady keying, and with a
     regulator (unless ``regulation`` is false) the extra runs for load and line regulation.
     With ``warm``, the steady state starts from the periodic state of the last design with the
-    same circuit (a sweep's neighbouring point).
+    same circuit (a sweep's neighbouring point).  ``hash`` (True/False, or None: as the design says,
+    :func:`simkit.pipeline.noise.wants_hash`) adds the high-frequency analysis.
     """
     eng = engine or get_engine()
     circuit = build_circuit(design, phase_deg=0.0, vscale=vscale)
@@ -131,6 +133,8 @@ def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0, 
     result.warnings[:0] = early
     if design.regulator is not None and regulation:
         _regulation(eng, design, vscale, result)
+    if wants_hash(design, hash):
+        attach_hash(eng, result, vscale, asked=bool(hash) or bool(design.simulation.hash))
     return result
 
 

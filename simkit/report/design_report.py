@@ -4,8 +4,9 @@ verdicts when ratings are checked, waveform plots, cautions, and the deck as an 
 Files (stable names, so build notes and articles can link to them): ``report.md``,
 ``report.html`` (self-contained), ``deck.cir``, and for each picture ``NAME.png`` and
 ``NAME.svg``: ``schematic``, ``output-steady``, ``diode-currents``, ``switch-on-voltage``,
-``switch-on-surge``; ``keyed`` when the design has a keyed load and the run carries its
-keyed run, ``start-up`` when the design has heater warm-ups or load steps.
+``switch-on-surge``, ``hum-spectrum``; ``keyed`` when the design has a keyed load and the run
+carries its keyed run, ``start-up`` when the design has heater warm-ups or load steps,
+``turn-off-ringing`` when the run carries the high-frequency analysis.
 
 Sections that depend on other capabilities appear when their data is there:
 
@@ -36,11 +37,11 @@ if TYPE_CHECKING:
 
 #: Picture file stems, in the order the report shows them.
 IMAGES: tuple[str, ...] = ("schematic", "output-steady", "diode-currents", "switch-on-voltage", "switch-on-surge",
-                           "keyed", "start-up")
-#: Pictures only some designs have (a keyed load; warm-ups or load steps).
-OPTIONAL_IMAGES: tuple[str, ...] = ("keyed", "start-up")
+                           "keyed", "start-up", "hum-spectrum", "turn-off-ringing")
+#: Pictures only some designs have (a keyed load; warm-ups or load steps; the high-frequency analysis).
+OPTIONAL_IMAGES: tuple[str, ...] = ("keyed", "start-up", "turn-off-ringing")
 #: Section headings every design report has (the verdict and keyed sections come on top when their data exists).
-SECTIONS: tuple[str, ...] = ("Summary", "Schematic", "Inputs", "Figures", "Parts", "Waveforms",
+SECTIONS: tuple[str, ...] = ("Summary", "Schematic", "Inputs", "Figures", "Parts", "Waveforms", "Hum and hash",
                              "High-voltage cautions", "Appendix: the SPICE deck")
 
 #: Helper elements simkit adds for the numerics, by name prefix: what they are.
@@ -217,6 +218,10 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
                       "design: output voltage, and the current each load draws. " + _steps_note(result))
         png, svg = plots.run_timeline_figure(result, result.start.waves, "Start-up")
         doc.image("start-up", png, svg, "Output voltage and load current from switch-on, with warm-ups and steps")
+
+    from simkit.report.noise_section import add_section
+
+    add_section(doc, result)
 
     doc.cautions()
 

@@ -103,7 +103,7 @@ UNIT_WORDS: dict[str, str] = {"V": "voltage", "A": "current", "W": "power", "s":
                               "VA": "apparent power", "Hz": "frequency", "%": "percent", "dB": "ratio",
                               "F": "capacitance", "H": "inductance", "Ω": "resistance"}
 #: Units shown without an SI prefix.
-NO_PREFIX = ("", "%", "dB", "h", "°", "A²s")
+NO_PREFIX = ("", "%", "dB", "h", "°", "A²s", "dBV", "dBuV", "dBµV")
 
 
 def figure_label(key: str, unit: str) -> str:
@@ -771,3 +771,128 @@ def run_figure_bytes(result: RunResult, fmt: str = "png") -> bytes:
             return save_figure(fig, fmt)
         finally:
             plt.close(fig)
+
+
+# -- hum and hash ---------------------------------------------------------------------------------
+
+#: Levels more than this far below a node's largest harmonic are not drawn (numerical dust), dB.
+SPECTRUM_RANGE = 60.0
+
+
+def _spectrum_panel(ax: Any, spectra: dict[str, Sequence[Any]], names: dict[str, str], unit: str,
+                    level: Any) -> None:
+    """Bars of ``level(h)`` (dB) per harmonic and node, grouped at each harmonic on a log frequency axis."""
+    n = len(spectra)
+    tops = [level(h) for hs in spectra.values() for h in hs]
+    top = max(tops)
+    # Each node shows its own harmonics down to SPECTRUM_RANGE below its largest: a quiet output's
+    # hum stays visible beside a loud reservoir.
+    own = {node: max(level(h) for h in hs) - SPECTRUM_RANGE for node, hs in spectra.items()}
+    floor = 10.0 * math.floor(min(own.values()) / 10.0)
+    half = 0.018  # half the group's width, in decades: groups of the 9th and 10th harmonics stay apart
+    width = 2 * half / max(n, 1)
+    for j, (node, hs) in enumerate(spectra.items()):
+        f = np.array([h.frequency_hz for h in hs])
+        lv = np.array([level(h) for h in hs])
+        left = f * 10 ** (-half + j * width)
+        right = left * 10 ** (0.85 * width)
+        shown = lv > max(own[node], floor)
+        best = max(hs, key=lambda h: h.rms)
+        ax.bar(left[shown], (lv - floor)[shown], width=(right - left)[shown], bottom=floor, align="edge",
+               color=PALETTE[j % len(PALETTE)], label=f"{names.get(node, node)}\nlargest {level(best):.1f} {unit} "
+               f"at {eng(best.frequency_hz, 'Hz')}")
+    lo = min(h.frequency_hz for hs in spectra.values() for h in hs)
+    hi = max(h.frequency_hz for hs in spectra.values() for h in hs)
+    ax.set_xlim(lo * 10 ** (-2 * half), hi * 10 ** (2 * half))
+    ax.set_ylim(floor, top + 0.15 * (top - floor))
+    first = list(next(iter(spectra.values())))
+    ticks = [h.frequency_hz for k, h in enumerate(first, 1) if k in (1, 2, 3, 4, 6, 10) or k == len(first)]
+    ax.set_xticks(ticks)
+    ax.xaxis.set_minor_locator(_null_locator())
+    legend_outside(ax)
+
+
+def _null_locator() -> Any:
+    from matplotlib.ticker import NullLocator
+
+    return NullLocator()
+
+
+def hum_spectrum_figure(result: RunResult) -> tuple[bytes, bytes]:
+    """The hum: the first ten harmonics of the source frequency at the rectifier's output, every filter node
+    and the output, as bars in dBV on a log frequency axis; at key-down and of the battery current below
+    when the design has them."""
+    from simkit.analysis.spectrum import dbua
+
+    panels: list[tuple[str, dict[str, Sequence[Any]], str, Any]] = []
+    names = {n: _where(result, n) for n in result.ripple_harmonics}
+    panels.append(("Hum: harmonics of the ripple in steady state, at each filter node",
+                   result.ripple_harmonics, "dBV", lambda h: h.dbv))
+    if result.keydown_harmonics:
+        panels.append(("Hum at key-down: the last whole period of the longest key-down", result.keydown_harmonics,
+                       "dBV", lambda h: h.dbv))
+    if result.battery_harmonics:
+        panels.append(("Battery current: harmonics of the source frequency (what the battery leads carry)",
+                       {"battery": result.battery_harmonics}, "dBuA", lambda h: dbua(h.rms)))
+        names["battery"] = "battery current"
+    with house_style():
+        fig, axes = new_figure(len(panels), 3.3 * len(panels) + 0.3)
+        for ax, (title, spectra, unit, level) in zip(axes, panels, strict=True):
+            shown = "dBµA" if unit == "dBuA" else unit
+            words = "hum level" if unit == "dBV" else "current level"
+            style_axes(ax, title, "", "", words, shown, logx=True)
+            _spectrum_panel(ax, spectra, names, shown, level)
+            unit_axis(ax.xaxis, f"frequency ({_freq(result)} source and its harmonics, log scale)", "Hz",
+                      significant=3)
+        return figure_bytes(fig)
+
+
+def ringing_figure(result: RunResult) -> tuple[bytes, bytes]:
+    """The high-frequency analysis: the reverse voltage of the diode with the strongest ring around its turn-off,
+    and the output's content above the hash band over the measured period."""
+    from simkit.analysis.spectrum import above
+    h = result.hash
+    hf = h.hf
+    w = hf.run.waves
+    a, b = hf.window
+    name = max(h.rings, key=lambda k: h.rings[k].amplitude_v)
+    ring = h.rings[name]
+    d = next(x for x in hf.circuit.diodes if x.name == name)
+    vrev = w.v(d.cathode) - w.v(d.anode)
+    f = ring.frequency_hz if ring.rings else hf.ring_estimate_hz
+    T = hf.circuit.period
+    t0 = ring.turn_off_s
+    span = min(12.0 / f, T / 8) if f > 0 else T / 20
+    sel = (w.time >= t0 - 0.1 * span) & (w.time <= t0 + span)
+    band = result.design.simulation.hash_band
+    n = int(min(1 << 21, max(8192, 2 * (b - a) / hf.step)))
+    grid, hash_wave = above(w.time, w.v(hf.circuit.output), a, b, band, n)
+    part = result.part(name, DiodeResult)
+    with house_style():
+        fig, axes = new_figure(2, 6.6)
+        ax = axes[0]
+        ax.plot(w.time[sel] - t0, vrev[sel], color=PALETTE[1], lw=1.1, label=f"{name} reverse voltage")
+        top = float(np.max(vrev[sel]))
+        if top > 0.5 * part.piv_v:  # the ring reaches towards the PIV: show it
+            ax.axhline(part.piv_v, color=MUTED, lw=0.9, ls="--", label=f"settled PIV {eng(part.piv_v, 'V')}")
+            top = max(top, part.piv_v)
+        what = (f"ring {eng(ring.frequency_hz, 'Hz')}" + (f", decays to 1/e in {eng(ring.decay_s, 's')}"
+                                                          if math.isfinite(ring.decay_s) else "")
+                if ring.rings else "no ring above a thousandth of the PIV")
+        note(ax, f"{what}; settled PIV {eng(part.piv_v, 'V')}, highest with the ringing "
+                 f"{eng(part.piv_v + (part.ring_peak_v or 0.0), 'V')}", "upper left")
+        low = float(np.min(vrev[sel]))
+        ax.set_ylim(low - 0.05 * (top - low), top + 0.35 * (top - low) + 1e-9)
+        style_axes(ax, f"Turn-off of {name} ({d.anode} → {d.cathode}), with its reverse recovery and junction "
+                   "capacitance", "time from the turn-off", "s", "reverse voltage", "V")
+        legend_outside(ax)
+        ax = axes[1]
+        ax.plot(grid - a, hash_wave, color=PALETTE[0], lw=0.8, label=f"output above {eng(band, 'Hz')}")
+        note(ax, f"RMS {eng(h.hash_rms_v, 'V')} ({result.metrics['hash_dbuv']:.1f} dBµV)", "upper left")
+        span_v = float(np.max(np.abs(hash_wave))) or 1e-12
+        ax.set_ylim(-1.1 * span_v, 1.5 * span_v)
+        style_axes(ax, f"Hash: the output's content above {eng(band, 'Hz')} over one period (node "
+                   f"{hf.circuit.output})",
+                   f"time within the measured period ({_freq(result)} source)", "s", "hash voltage", "V")
+        legend_outside(ax)
+        return figure_bytes(fig)

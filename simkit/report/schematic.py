@@ -5,7 +5,9 @@ Drawn: the winding (EMF ``V1``..., series resistance ``RW1``..., leakage ``LW1``
 inverter with the battery behind it), the rectifier diodes, or a vacuum rectifier as a tube
 (envelope, plates, cathode or filament, heater leads; a full-wave tube's two plates in one
 envelope), the RC snubbers simkit adds where inductance feeds the diodes (``CSW``/``RSW``
-across a winding, ``CSR``/``RSR`` at a choke input: they are real parts to fit), stage,
+across a winding, ``CSR``/``RSR`` at a choke input: they are real parts to fit, labelled
+"added by simkit"), the design's own snubbers (``CSS``/``RSS`` across a winding in the same
+place, ``CSD``/``RSD`` beside each diode on a parallel line, labelled "design"), stage,
 reservoir and filter capacitors (ESR in the label), balancing resistors, chokes (DCR in
 the label), filter resistors, the regulator (shunt: the dropping resistor and the zener
 string or glow tubes; series: the pass MOSFET, the reference zener with its resistor, the
@@ -36,6 +38,7 @@ from functools import cache
 from typing import Any
 
 from simkit.design.model import Design
+from simkit.netlist.build import DIODE_SNUBBER, SOURCE_SNUBBER
 from simkit.netlist.circuit import CapRef, Circuit, DiodeRef
 from simkit.units import eng
 
@@ -564,7 +567,12 @@ class _Sheet:
     def rectifier_plate(self, d: DiodeRef, a: Pt, b: Pt, sides: Iterable[str]) -> None:
         """One rectifier diode from ``a`` (anode) to ``b`` (cathode): a diode, or a one-plate tube."""
         if not self.vacuum:
+            sides = tuple(sides)
+            snub = self.diode_snubber_items(d.name)
+            place = self.diode_snubber(a, b, snub, sides) if snub else None
             self.two([d.name], "diode", self.element("diode"), a, b, self.diode_label([d.name]), sides)
+            if place is not None:
+                place()
             return
         ang = math.degrees(math.atan2(b[1] - a[1], b[0] - a[0]))
         mid = ((a[0] + b[0]) / 2, (a[1] + b[1]) / 2)
@@ -615,15 +623,80 @@ class _Sheet:
             here = end
 
     def snubber_items(self, tag: str) -> list[tuple[str, str, str]]:
-        """(name, kind, label) of the snubber ``tag`` (``SW1``, ``SR``): its capacitor, then its resistor."""
+        """(name, kind, label) of the snubber ``tag`` (``SW1``, ``SR``): its capacitor, then its resistor.
+
+        Across a winding (``SWk``) that is the design's own snubber (``CSSk``/``RSSk``) when it fits one,
+        else the one simkit adds; the labels say which.
+        """
+        own = re.fullmatch(r"SW(\d+)", tag)
+        if own and any(c.name == f"C{SOURCE_SNUBBER}{own.group(1)}" for c in self.c.capacitors):
+            tag, word = f"{SOURCE_SNUBBER}{own.group(1)}", "snubber\n(design)"
+        else:
+            word = "snubber\n(added by simkit)"
         items = []
         for c in self.c.capacitors:
             if c.name == f"C{tag}":
-                items.append((c.name, "snubber-c", f"{c.name}\n{eng(c.value, 'F')}\nsnubber"))
+                items.append((c.name, "snubber-c", f"{c.name}\n{eng(c.value, 'F')}\n{word}"))
         for r in self.c.resistors:
             if r.name == f"R{tag}":
-                items.append((r.name, "resistor", f"{r.name}\n{eng(r.value, 'Ω')}\nsnubber"))
+                items.append((r.name, "resistor", f"{r.name}\n{eng(r.value, 'Ω')}\n{word}"))
         return items
+
+    def diode_snubber_items(self, diode: str) -> list[tuple[str, float]]:
+        """The design's snubber across one diode: its capacitor's and its resistor's (name, value)."""
+        tag = f"{DIODE_SNUBBER}{diode[1:]}"
+        caps = [(c.name, c.value) for c in self.c.capacitors if c.name == f"C{tag}"]
+        res = [(r.name, r.value) for r in self.c.resistors if r.name == f"R{tag}"]
+        return caps + res if caps and res else []
+
+    def diode_snubber(self, a: Pt, b: Pt, items: Sequence[tuple[str, float]], sides: Sequence[str]) -> Any:
+        """A snubber beside the diode from ``a`` to ``b``: its capacitor and resistor in series on a parallel
+        line, joined to both ends.  Beside a horizontal diode it goes on the side away from the diode's
+        label, beside a vertical one on the label's side (the label then moves out past it).  Draws the
+        symbols now; returns what places their one label, after the diode's."""
+        (cname, cval), (rname, rval) = items
+        vec = {"left": (-1.0, 0.0), "right": (1.0, 0.0), "above": (0.0, 1.0), "below": (0.0, -1.0)}
+        want = vec.get(sides[0], (0.0, 1.0))
+        dx, dy = b[0] - a[0], b[1] - a[1]
+        length = math.hypot(dx, dy)
+        n = (-dy / length, dx / length)
+        horizontal = abs(dy) < 1e-9
+        if horizontal:
+            want = (-want[0], -want[1])
+        if n[0] * want[0] + n[1] * want[1] < 0:
+            n = (-n[0], -n[1])
+        off = 1.3
+        if not horizontal and abs(dx) > 1e-9:  # a diagonal (a cascade's): tap its leads, keep clear of the columns
+            off = 1.0
+            a = (a[0] + 0.15 * dx, a[1] + 0.15 * dy)
+            b = (a[0] + 0.7 * dx, a[1] + 0.7 * dy)
+        a2 = (a[0] + n[0] * off, a[1] + n[1] * off)
+        b2 = (b[0] + n[0] * off, b[1] + n[1] * off)
+        mid = ((a2[0] + b2[0]) / 2, (a2[1] + b2[1]) / 2)
+        self.wire(a, a2)
+        self.wire(b2, b)
+        boxes = []
+        for kind, p, q in (("snubber-c", a2, mid), ("resistor", mid, b2)):
+            element = self.element(kind)
+            body = self.body_box(element, p, q)
+            self.add(element.endpoints(p, q))
+            self.bodies.append(body)
+            self._lead_boxes(p, q, body)
+            boxes.append(body)
+        for xy in (a, b):
+            self.dot(xy)
+        both = Box(min(x.x0 for x in boxes), min(x.y0 for x in boxes), max(x.x1 for x in boxes),
+                   max(x.y1 for x in boxes))
+        text = f"{cname}, {rname}\n{eng(cval, 'F')}, {eng(rval, 'Ω')}\nsnubber (design)"
+        side = next(k for k, v in vec.items() if v == (round(n[0]), round(n[1]))) \
+            if (round(n[0]), round(n[1])) in vec.values() else sides[0]
+
+        def place() -> None:
+            self.label(text, both, (side, *[x for x in ("right", "left", "above", "below") if x != side]))
+            self.record([cname], "capacitor", text)
+            self.record([rname], "resistor", text)
+
+        return place
 
     def column_x(self, bottom: float, top: float, half_width: float = 0.35) -> float:
         """The x of a new vertical column between ``bottom`` and ``top``: right of everything there."""
@@ -648,6 +721,8 @@ class _Sheet:
             here = (x, height)
         d1 = self.diode_by_nodes("ac1", self.rect)
         x = max(here[0], self.frontier(height + 1e-3, math.inf)) + 0.4
+        if self.diode_snubber_items(d1.name):  # its snubber runs below the top line: clear of what is there
+            x = max(x, self.frontier(0.0, height - 1e-3) + 0.6)
         self.wire(here, (x, height))
         length = max(U, _measure(self.diode_label([d1.name]), PART_FONT)[0] + 2 * PAD)
         if self.vacuum:
@@ -685,6 +760,8 @@ class _Sheet:
         if self.vacuum:
             return self.centre_tap_tube(ends, height)
         x = max(p[0] for p in ends) + 0.4
+        if self.diode_snubber_items("D1"):  # the diodes' snubbers reach back: start clear of the winding's labels
+            x = max(x, self.frontier(-w - U, w + U) + 0.6)
         tops = []
         for k, here in zip((1, 2), ends, strict=True):
             self.wire(here, (x, here[1]))
@@ -733,6 +810,9 @@ class _Sheet:
         xa = 0.0
         tag = "SW1"
         snub = self.snubber_items(tag)
+        beside = bool(self.diode_snubber_items("D1"))
+        if beside:  # snubbers beside the legs' diodes: every label once the whole block is drawn
+            self.defer()
         low = U + (2.2 if snub else 0.0) + (1.0 if self.vacuum else 0.0)  # room for a snubber under the winding
         d_low = self.diode_by_nodes("0", "ac1")
         tube_top = self.vacuum and second == "bridge"
@@ -775,6 +855,8 @@ class _Sheet:
         self.ground((xa, 0.0))
         self.rail_start = (xa, 0.0)
         self.dot((xb, top))
+        if beside:
+            self.flush()
         return (xb, top)
 
     def under_winding(self, start: Pt, end: Pt, y: float, snub: Sequence[tuple[str, str, str]]) -> None:
@@ -851,6 +933,8 @@ class _Sheet:
         plate = _measure(self.diode_label(["D1"]), PART_FONT)[0]
         half = self.cls["RectifierTube"].R if self.vacuum else 0.3
         step = max(6.0, 2 * (2 * half + 2 * PAD + plate) + 0.8)
+        if self.diode_snubber_items("D1"):  # room for a snubber beside each diode, and its label
+            step += 2.0 + _measure("CSD1, RSD1", PART_FONT)[0]
         pump_y = 4.5 + (1.5 if self.vacuum else 0.0)
         items = self.winding_items(1)
         name, kind, text = items[0]
@@ -1177,7 +1261,7 @@ def _tall(design: Design, circuit: Circuit) -> bool:
     """Whether the ladder needs two symbols' height: a snubber in it, or a series regulator's reference."""
     names = {e.name for e in circuit.elements}
     reg = design.regulator
-    half_wave_snubber = design.rectifier.topology == "half-wave" and "CSW1" in names
+    half_wave_snubber = design.rectifier.topology == "half-wave" and bool({"CSW1", "CSS1", "CSD1"} & names)
     return "CSR" in names or half_wave_snubber or (reg is not None and reg.kind == "series")
 
 

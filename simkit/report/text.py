@@ -13,9 +13,9 @@ if TYPE_CHECKING:
     from simkit.pipeline import RunResult
 
 #: How a unit is written for people (prefixes are added by eng()).
-SYMBOLS = {"ohm": "Ω", "A2s": "A²s"}
+SYMBOLS = {"ohm": "Ω", "A2s": "A²s", "dBuV": "dBµV"}
 #: Units shown without an SI prefix: a prefix would mislead ((mA)²s, mh).
-_PLAIN = ("h", "%", "", "A2s", "dB")
+_PLAIN = ("h", "%", "", "A2s", "dB", "dBV", "dBuV")
 
 
 def unit_of(key: str) -> str:
@@ -26,6 +26,8 @@ def unit_of(key: str) -> str:
 
 def show(key: str, value: Any) -> str:
     """A figure's value with its unit, as tables show it ("n/a" for a figure not computed)."""
+    if value is None:  # a figure with no value (no ring to measure), as run --json gives it
+        return "n/a"
     if isinstance(value, bool) or not isinstance(value, float | int):
         return str(value)
     if not math.isfinite(value):
