@@ -8,6 +8,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from simkit import progress as progress_hook
 from simkit.analysis import metrics as mx
 from simkit.analysis import plan
 from simkit.analysis.keyed import keyed_steady
@@ -98,6 +99,8 @@ def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0, 
     same circuit (a sweep's neighbouring point).
     """
     eng = engine or get_engine()
+    if progress is None:  # whoever listens (simkit.progress) hears every analysis
+        progress = progress_hook.callback()
     circuit = build_circuit(design, phase_deg=0.0, vscale=vscale)
     check_cost(design, circuit)
     early: list[str] = []
