@@ -5,18 +5,19 @@ a short lead-in before a keying cycle: long enough for the circuit's slowest mod
 mean-load steady state's Jacobian, to forget where it started (``LEAD_DECAY``).  Then one whole
 keying cycle is simulated and checked: the output's one-period mean over the period before the
 cycle and over the period before its end must agree (``SETTLE_SHARE`` of the swing, or
-``SETTLE_FLOOR`` of the output).  A circuit that has not forgotten its start by then runs on,
-cycle after cycle, the drift extrapolated geometrically when it shrinks steadily, until it does
-or ``MAX_CYCLES`` have run.
+``SETTLE_FLOOR`` of the output, or the integration noise: ``NOISE_SHARE`` x reltol of it).
+A circuit that has not forgotten its start by then runs on, cycle after cycle, the drift
+extrapolated geometrically when it shrinks steadily, until it does or ``MAX_CYCLES`` have run.
 
 Cost and memory.  The keying pattern runs at ``COARSE_STEPS`` steps per period at most and at
 ngspice's own default tolerance (``KEYED_RELTOL``): the keyed figures are means and one-period
 means, which that holds to about 0.1 % (docs/engine-notes.md#keyed-step).  The runs are chunks of
 about ``CHUNK_POINTS`` time points, each thinned as it comes (:func:`thin`): ``THIN_PER_PERIOD``
 samples a period of the vectors the figures use, plus each one's highest and lowest sample of
-every period, plus the running integral of each (so means and one-period means come out of the
-thinned trace exactly).  Only the ripple during key-down needs the measuring step: the last period
-of the longest key-down is simulated again at it (``refined``).
+every period, plus the running integral of each (so a mean between kept samples is the full
+trace's, and between them off only by the integral's curvature over a 24th of a period).
+Only the ripple during key-down needs the measuring step: the last period of the longest
+key-down is simulated again at it (``refined``), from the exact state where a chunk ends.
 """
 
 from __future__ import annotations
@@ -68,8 +69,8 @@ class KeyedRun:
 
     ``run.waves`` holds the thinned vectors (absolute time ``run.waves.time + run.offset``),
     ``areas`` the running integral of each at the same samples (so :meth:`mean` and
-    :meth:`period_mean` are exact, not limited by the thinning), ``refined`` the last period of
-    the longest key-down at the measuring step.
+    :meth:`period_mean` integrate the full trace, not the thinned one), ``refined`` the last
+    period of the longest key-down at the measuring step.
     """
 
     run: Run
