@@ -75,8 +75,9 @@ FIGURES: dict[str, Figure] = _table(
            words="key-up output voltage"),
     Figure("sag_v", "V", "vout_keyup_v - vout_keydown_v", _KEY, words="sag"),
     Figure("sag_pct", "%", "sag_v as a percentage of vout_keyup_v", _KEY, words="sag"),
-    Figure("recovery_time_s", "s", "from the longest key-down's edge until the output's one-period mean stays "
-           "within settle_band of the step around where it ends that key-down", _KEY, words="recovery time"),
+    Figure("recovery_time_s", "s", "from the longest key-down's edge (a stepped load: its largest rise) until the "
+           "output's one-period mean stays within settle_band (2 %) of the step around where it ends", _KEY,
+           words="recovery time"),
     Figure("overshoot_v", "V", "rise of the output's one-period mean after the key-up edge above where it ends "
            "that key-up interval", _KEY, words="overshoot"),
     Figure("ripple_keydown_pp_v", "V", "output ripple over the last period of the longest key-down interval (at "

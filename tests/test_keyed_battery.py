@@ -135,7 +135,7 @@ duty = "50%"
 """
     r = simulate(design_from_dict(parse_toml_text(toml)))
     assert math.isnan(r.metrics["recovery_time_s"])
-    assert any("has not recovered before key-up" in w for w in r.warnings)
+    assert any("has not recovered before the load changes again" in w for w in r.warnings)
 
 
 def test_the_keyed_runs_means_come_exactly_out_of_the_thinned_trace() -> None:
