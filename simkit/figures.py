@@ -85,8 +85,8 @@ FIGURES: dict[str, Figure] = _table(
     Figure("droop_v", "V", "fall of the output's one-period mean from the start to the end of the longest key-down",
            _KEY),
     Figure("keying_cycle_s", "s", "length of one keying cycle (one repetition of the Morse text)", _KEY),
-    Figure("chirp_hz", "Hz", "pushing_hz_per_v x the change of the one-period mean at the oscillator's node over "
-           "a dot", _KEY, words="chirp"),
+    Figure("chirp_hz", "Hz", "pushing_hz_per_v x the change of the one-period mean at the oscillator's node within "
+           "a dot (edges left out)", _KEY, words="chirp"),
     Figure("battery_keydown_current_a", "A", "mean battery current with the key held down until everything settled "
            "(what fuse and wiring carry)", _KEY, words="battery current, key down"),
     Figure("battery_keyup_current_a", "A", "battery current at the end of the longest key-up interval (one-period "

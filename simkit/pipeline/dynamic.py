@@ -13,6 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from simkit.analysis import keyed as kd
 from simkit.analysis import metrics as mx
 from simkit.analysis.keyed import KeyedRun
 from simkit.analysis.runs import Run
@@ -37,7 +38,8 @@ def keyed_figures(design: Design, keyed: KeyedRun, m: dict[str, float], warnings
     - ``droop_v``: its fall from the first to the last period of the longest key-down;
     - ``overshoot_v``: its rise after the key-up edge above where it ends that key-up interval;
     - ``chirp_hz``: ``pushing_hz_per_v`` x its change over the shortest key-down (a dot) at the
-      oscillator's node.
+      oscillator's node, the means taken wholly inside the dot (edges out; a dot shorter than a
+      period: the raw change over it).
     """
     ld = design.keyed[0]
     circuit = keyed.circuit
@@ -66,7 +68,10 @@ def keyed_figures(design: Design, keyed: KeyedRun, m: dict[str, float], warnings
     m["sag_v"] = vu - vd
     m["sag_pct"] = 100 * (vu - vd) / vu if vu else math.nan
     a, b = max(downs, key=lambda iv: iv[1] - iv[0])
-    rec = recovery(lambda at: keyed.period_mean(out, at), T, a - max(ld.rise, 1e-6), b, ld.settle_band)
+    # The band is at least the keyed run's resolution: its one-period mean scatters by about a quarter of
+    # its reltol of the output (docs/engine-notes.md#keyed-step).
+    floor = kd.NOISE_SHARE * max(design.simulation.reltol, kd.KEYED_RELTOL)
+    rec = recovery(lambda at: keyed.period_mean(out, at), T, a - max(ld.rise, 1e-6), b, ld.settle_band, floor=floor)
     m["recovery_time_s"] = rec.time
     if rec.problem:
         warnings.append(rec.problem)
@@ -90,10 +95,12 @@ def keyed_figures(design: Design, keyed: KeyedRun, m: dict[str, float], warnings
     if ld.pushing is not None:
         # The shortest key-down element is the dot; the oscillator follows its node, ripple averaged out.
         da, db = min(downs, key=lambda iv: iv[1] - iv[0])
-        node = out if ld.at is None else circuit.section_nodes[ld.at]
-        grid = np.linspace(da - max(ld.rise, 1e-6), db, 64)
-        swing = keyed.period_mean(node.lower(), grid)
-        m["chirp_hz"] = abs(ld.pushing) * float(np.nanmax(swing) - np.nanmin(swing))
+        node = (out if ld.at is None else circuit.section_nodes[ld.at]).lower()
+        if db - da > T:  # one-period means wholly inside the dot
+            swing = keyed.period_mean(node, np.linspace(da + T / 2, db - T / 2, 64))
+            m["chirp_hz"] = abs(ld.pushing) * float(np.nanmax(swing) - np.nanmin(swing))
+        else:  # a dot shorter than a period leaves no room for a mean: the raw change over it
+            m["chirp_hz"] = abs(ld.pushing) * mx.peak_to_peak(keyed.time, keyed.run.waves.v(node), da, db)
     if not keyed.settled:
         warnings.append(f"steady keying was not reached in {keyed.cycles} keying cycles (the output's one-period "
                         f"mean still moved {abs(keyed.drift):.3g} V over the last); keyed figures are approximate")
@@ -112,12 +119,14 @@ class Recovery:
 
 
 def recovery(period_mean: Callable[[np.ndarray], np.ndarray], T: float, edge: float, end: float,
-             share: float, what: str = "the longest key-down") -> Recovery:
+             share: float, what: str = "the longest key-down", floor: float = 0.0) -> Recovery:
     """Settling of a one-period mean (``period_mean(times)``, period ``T``) after a load step at ``edge``
     until ``end`` (the next change).
 
     The level is the one-period mean over the last period before ``end``; the band is ``share``
-    of the step from the one-period mean over the period before the edge to that level.  The
+    of the step from the one-period mean over the period before the edge to that level, and at
+    least ``floor`` of the level (the run's own resolution: a step smaller than that is no
+    recovery to time).  The
     recovery time runs from the edge until the mean enters the band for good.  When the mean
     still moves more than the band over the last period, the output has not recovered: NaN.
     """
@@ -129,7 +138,7 @@ def recovery(period_mean: Callable[[np.ndarray], np.ndarray], T: float, edge: fl
                         f"{what} is shorter than two source periods: recovery_time_s is not measured")
     before = pm1(edge - T / 2)
     level = pm1(end - T / 2)
-    band = share * abs(before - level)
+    band = max(share * abs(before - level), floor * abs(level))
     if not math.isfinite(before) or band <= 0:
         return Recovery(0.0, level, band)
     grid = np.linspace(edge, end - T / 2, max(round(40 * (end - edge) / T), 16))
