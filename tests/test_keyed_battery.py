@@ -287,9 +287,12 @@ def test_run_with_the_battery_low(tmp_path: Path, capsys: pytest.CaptureFixture[
     m = json.loads(out)["metrics"]
     assert m["battery_voltage_v"] == pytest.approx(11.5 - 0.03 * m["battery_current_a"], rel=1e-9)
     assert "battery low: 11.5 V" in err and "simkit: steady" not in err  # no progress line off a terminal
+    mains = tmp_path / "mains.toml"
+    mains.write_text('[source]\nvrms = "120"\nfrequency = "60"\nresistance = "4"\n[rectifier]\ntopology = "bridge"\n'
+                     '[[filter]]\nc = "100u"\n[load]\nkind = "resistor"\nr = "5k"\n', "utf-8")
     with pytest.raises(SystemExit) as exc:
-        main(["run", str(path).replace("station", "nothing"), "--battery", "low"])
-    assert exc.value.code == 2
+        main(["run", str(mains), "--battery", "low"])
+    assert exc.value.code == 2 and "--battery low needs a [battery] section" in capsys.readouterr().err
 
 
 @pytest.mark.ngspice

@@ -249,6 +249,11 @@ def regulator_figures(design: Design, circuit: Circuit, w: Waveforms, window: tu
         kw = keyed.run.waves
         kt = kw.time + keyed.run.offset
         spans.append((kt, kw.v("raw"), kw.v("out"), kw, *keyed.window))
+        ref = keyed.refined
+        if ref is not None:  # the end of the longest key-down at the measuring step: the deepest trough
+            rw = ref.waves
+            rt = rw.time + ref.offset
+            spans.append((rt, rw.v("raw"), rw.v("out"), rw, float(rt[0]) + ref.tstop / 2, float(rt[-1])))
     m["reg_vin_v"] = mx.mean(t, vin, t0, t1)
     m["reg_vout_v"] = mx.mean(t, vout, t0, t1)
     m["reg_headroom_min_v"] = min(mx.trough(tt, a - b, c0, c1) for tt, a, b, _, c0, c1 in spans)
