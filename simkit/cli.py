@@ -62,6 +62,30 @@ def _mains_scale(design: Any, mains: str) -> float:
     return 1.0 + tol if mains == "high" else 1.0 - tol
 
 
+def _battery_corner(design: Any, battery: str) -> Any:
+    """The design with its battery at ``--battery low|high`` (the corners of `simkit check`)."""
+    if battery == "nominal":
+        return design
+    from dataclasses import replace
+
+    from simkit.errors import DesignError
+
+    if design.battery is None:
+        raise DesignError(f"--battery {battery} needs a [battery] section (an inverter fed from a battery)",
+                          file=design.origin, key="battery")
+    return replace(design, battery=design.battery.at(battery))
+
+
+def _progress(quiet: bool, as_json: bool = False) -> Any:
+    """The status line on stderr for runs over about two seconds (not with --quiet or --json, nor off a terminal)."""
+    from simkit.progress import terminal
+
+    return terminal(sys.stderr, enabled=not quiet and not as_json)
+
+
+QUIET_HELP = "Show no progress line (it shows only on a terminal, for runs over about two seconds)."
+
+
 def _warn(result: Any) -> None:
     for w in result.warnings:
         click.echo(f"simkit: warning: {w}", err=True)
@@ -95,13 +119,16 @@ def cli(ctx: click.Context) -> None:
               "probe-NAME.csv and .png: a node (out), a part's current (D1) or voltage (v(C1)); repeatable. "
               "`simkit netlist DESIGN --nodes` lists the names.")
 @click.option("--hash/--no-hash", "hash_", default=None, help=HASH_HELP)
+@click.option("--battery", type=click.Choice(["nominal", "high", "low"]), default="nominal", show_default=True,
+              help="Simulate an inverter's battery at battery.low or battery.high (the corners of check).")
+@click.option("--quiet", is_flag=True, help=QUIET_HELP)
 def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | None, force: bool,
-        mains: str, probes: tuple[str, ...], hash_: bool | None) -> None:
+        mains: str, probes: tuple[str, ...], hash_: bool | None, battery: str, quiet: bool) -> None:
     """Simulate a design and print its figures."""
     from simkit.report.outputs import OutputDir
     from simkit.report.text import run_table
 
-    d = _load(design, overrides)
+    d = _battery_corner(_load(design, overrides), battery)
     vscale = _mains_scale(d, mains)
     probe_files = _probe_plan(d, probes, out_dir)
     with contextlib.ExitStack() as stack:
@@ -109,9 +136,12 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
         if out_dir:  # opened (created, locked, proved writable) before the simulation
             out = stack.enter_context(OutputDir(out_dir, force=force))
             out.check(["result.json", "deck.cir", "waveforms.png", *probe_files])
-        result = _simulate_with(d, vscale, hash_)
+        with _progress(quiet, as_json):
+            result = _simulate_with(d, vscale, hash_)
         if vscale != 1.0:
             result.warnings.insert(0, f"simulated at {mains} mains: the source EMF x {vscale:g}")
+        if battery != "nominal":
+            result.warnings.insert(0, f"simulated with the battery {battery}: {d.battery.voltage:g} V")
         _warn(result)
         doc = result.to_json()
         if as_json:
@@ -196,7 +226,8 @@ def _node_map(design: Any, output: str | None, force: bool) -> None:
 @click.argument("design", type=click.Path())
 @click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
 @click.option("--json", "as_json", is_flag=True, help="Print exactly one JSON document on stdout.")
-def check(design: str, overrides: tuple[str, ...], as_json: bool) -> None:
+@click.option("--quiet", is_flag=True, help=QUIET_HELP)
+def check(design: str, overrides: tuple[str, ...], as_json: bool, quiet: bool) -> None:
     """Check every part against its ratings at the worst corners, and the discharge after switch-off.
 
     Exit status 1 when any verdict is fail, so scripts can gate on it.
@@ -205,7 +236,8 @@ def check(design: str, overrides: tuple[str, ...], as_json: bool) -> None:
     from simkit.report.check_text import report_text
 
     d = _load(design, overrides)
-    rep = check_design(d)
+    with _progress(quiet, as_json):
+        rep = check_design(d)
     if as_json:
         click.echo(json.dumps(rep.to_json(), indent=2))
     else:
@@ -232,7 +264,9 @@ def demo(out_dir: str, force: bool) -> None:
               "(default: DESIGN's name with -report, e.g. amp-report/).")
 @click.option("--force", is_flag=True, help="Replace files simkit did not write.")
 @click.option("--hash/--no-hash", "hash_", default=None, help=HASH_HELP)
-def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: bool, hash_: bool | None) -> None:
+@click.option("--quiet", is_flag=True, help=QUIET_HELP)
+def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: bool, hash_: bool | None,
+           quiet: bool) -> None:
     """Write a report for documents: report.md, a self-contained report.html, the schematic,
     the verdicts of the stress checks, the plots (PNG and SVG) and the deck."""
     from simkit.design.loader import read_design_text
@@ -243,9 +277,14 @@ def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: 
     text = read_design_text(design)  # the file as written, for the appendix (read once, safely)
     with OutputDir(out_dir or default_out_dir(design), force=force) as out:
         out.check(["report.md", "report.html"])
-        result = _simulate_with(d, 1.0, hash_)
+        with _progress(quiet):
+            from simkit import progress
+
+            with progress.stage("the design"):
+                result = _simulate_with(d, 1.0, hash_)
+            with progress.stage("stress checks"):
+                checks, check_error = run_checks(d)
         _warn(result)
-        checks, check_error = run_checks(d)
         if check_error:
             click.echo(f"simkit: warning: the stress checks could not be completed: {check_error}", err=True)
         names = write_report(result, out, text, Path(design).name, overrides, checks, check_error)

@@ -57,12 +57,18 @@ FIGURES: dict[str, Figure] = _table(
     Figure("vout_warmup_v", "V", "highest output voltage before the loads draw current", _ON),
     # Battery and inverter (with a [battery]).
     Figure("battery_current_a", "A", "mean battery current in steady state", _BAT, words="battery current"),
-    Figure("battery_peak_current_a", "A", "highest battery current in steady state", _BAT),
+    Figure("battery_peak_current_a", "A", "highest instantaneous battery current: in steady state, and in steady "
+           "keying when the load is keyed", _BAT, words="battery peak current"),
     Figure("battery_voltage_v", "V", "mean battery terminal voltage under load", _BAT, words="battery voltage"),
     Figure("input_power_w", "W", "mean power drawn from the battery", _BAT, words="battery power"),
-    Figure("output_power_w", "W", "mean power the inverter delivers", _BAT, words="inverter output power"),
+    Figure("output_power_w", "W", "mean power the inverter delivers (any inverter, with or without [battery])", _BAT,
+           words="inverter output power"),
     Figure("efficiency", "", "output_power_w / input_power_w", _BAT, words="efficiency"),
-    Figure("runtime_h", "h", "usable capacity / battery_current_a (no Peukert correction)", _BAT, words="run time"),
+    Figure("runtime_h", "h", "hours until the usable capacity is used at the steady-state current, by Peukert's law "
+           "(battery.peukert)", _BAT, words="run time"),
+    # An inverter's output (kind "inverter").
+    Figure("inverter_switch_on_power_w", "W", "highest mean power the inverter delivers over one period after "
+           "switch-on (charging empty capacitors)", _ON, words="inverter switch-on power"),
     # Steady keying (a keyed load; the first one when there are several).
     Figure("vout_keydown_v", "V", "mean output over the key-down intervals of a keying cycle", _KEY,
            words="key-down output voltage"),
@@ -70,17 +76,26 @@ FIGURES: dict[str, Figure] = _table(
            words="key-up output voltage"),
     Figure("sag_v", "V", "vout_keyup_v - vout_keydown_v", _KEY, words="sag"),
     Figure("sag_pct", "%", "sag_v as a percentage of vout_keyup_v", _KEY, words="sag"),
-    Figure("recovery_time_s", "s", "after the longest key-down edge, until the output stays within 1 % of "
-           "vout_keydown_v", _KEY, words="recovery time"),
-    Figure("overshoot_v", "V", "highest output after key-up above vout_keyup_v", _KEY, words="overshoot"),
-    Figure("ripple_keydown_pp_v", "V", "output ripple over the last period of the longest key-down interval", _KEY),
+    Figure("recovery_time_s", "s", "from the longest key-down's edge (a stepped load: its largest rise) until the "
+           "output's one-period mean stays within settle_band (2 %) of the step around where it ends", _KEY,
+           words="recovery time"),
+    Figure("overshoot_v", "V", "rise of the output's one-period mean after the key-up edge above where it ends "
+           "that key-up interval", _KEY, words="overshoot"),
+    Figure("ripple_keydown_pp_v", "V", "output ripple over the last period of the longest key-down interval (at "
+           "the measuring step)", _KEY),
     Figure("droop_v", "V", "fall of the output's one-period mean from the start to the end of the longest key-down",
            _KEY),
     Figure("keying_cycle_s", "s", "length of one keying cycle (one repetition of the Morse text)", _KEY),
-    Figure("chirp_hz", "Hz", "pushing_hz_per_v x the output's peak-to-peak change during a dot", _KEY, words="chirp"),
-    Figure("battery_keydown_current_a", "A", "mean battery current while key-down, in steady keying", _KEY),
-    Figure("battery_keyup_current_a", "A", "mean battery current while key-up, in steady keying", _KEY),
-    Figure("runtime_keyed_h", "h", "usable capacity / mean battery current at the keying duty", _KEY),
+    Figure("chirp_hz", "Hz", "pushing_hz_per_v x the change of the one-period mean at the oscillator's node within "
+           "a dot (edges left out)", _KEY, words="chirp"),
+    Figure("battery_keydown_current_a", "A", "mean battery current with the key held down until everything settled "
+           "(what fuse and wiring carry)", _KEY, words="battery current, key down"),
+    Figure("battery_keyup_current_a", "A", "battery current at the end of the longest key-up interval (one-period "
+           "mean)", _KEY, words="battery current, key up"),
+    Figure("battery_keyed_current_a", "A", "mean battery current over a keying cycle", _KEY,
+           words="battery current while keying"),
+    Figure("runtime_keyed_h", "h", "hours until the usable capacity is used while keying, by Peukert's law on the "
+           "current as it varies", _KEY, words="run time while keying"),
     # Regulator (with a [regulator]).
     Figure("reg_vin_v", "V", "mean regulator input (the filter's output)", _REG, words="regulator input voltage"),
     Figure("reg_vout_v", "V", "mean regulated output", _REG, words="regulated output voltage"),

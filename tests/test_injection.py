@@ -273,6 +273,11 @@ FIELDS: list[Field] = [
     *(Field(f"battery.{k}", INVERTER_TOML, f"{k} = {{v}}".replace("{v}", g), f"{k} = {{v}}", g.strip('"'))
       for k, g in (("voltage", '"12.6"'), ("internal_resistance", '"25m"'), ("capacity", '"7"'),
                    ("usable_fraction", '"50%"'))),
+    *(Field(f"battery.{k}", INVERTER_TOML, 'usable_fraction = "50%"', f'usable_fraction = "50%"\n{k} = {{v}}', g)
+      for k, g in (("chemistry", "lead-acid"), ("cells", "6"), ("low", "11.5"), ("high", "14.4"), ("peukert", "1.15"),
+                   ("rated_hours", "20"))),
+    Field("source.peak_power", INVERTER_TOML, 'edge_time = "40u"', 'edge_time = "40u"\npeak_power = {v}', "300"),
+    Field("load.settle_band", INVERTER_TOML, 'fall = "2m"', 'fall = "2m"\nsettle_band = {v}', "2%"),
     *(Field(f"load.{k}", INVERTER_TOML, f"{k} = {{v}}".replace("{v}", g), f"{k} = {{v}}", g.strip('"'))
       for k, g in (("rate", '"5"'), ("duty", '"50%"'), ("rise", '"2m"'), ("fall", '"2m"'),
                    ("pushing_hz_per_v", '"20"'))),

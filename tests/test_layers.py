@@ -17,6 +17,7 @@ ROOT = Path(__file__).resolve().parent.parent / "simkit"
 #: Module (or package) prefix -> layer rank; the longest matching prefix wins.
 RANKS: dict[str, int] = {
     "simkit": 0, "simkit.units": 0, "simkit.errors": 0, "simkit.figures": 0, "simkit.safety": 0,
+    "simkit.progress": 0,
     # the design vocabulary and the types it declares
     "simkit.design": 1, "simkit.design.vocab": 1, "simkit.design.devices": 1, "simkit.design.sources": 1,
     "simkit.design.loads": 1, "simkit.design.morse": 1, "simkit.design.model": 1,

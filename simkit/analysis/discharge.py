@@ -45,6 +45,10 @@ def discharge(engine: Engine, design: Design, state: dict[str, float], span: flo
     """Simulate switch-off from ``state`` (capacitor voltages and inductor currents by element name)."""
     pol = design.checks
     off = replace(design, loads=())
+    inv = design.source.inverter
+    if inv is not None and inv.waveform != "sine":
+        # The source is off: a square wave's edges at zero amplitude would only cost the run its time steps.
+        off = replace(off, source=replace(inv, waveform="sine", peak_given=None))
     circuit = build_circuit(off, phase_deg=0.0, vscale=0.0)
     span = span or max(20 * pol.safe_time, 60.0)
     caps = [c for c in circuit.capacitors if c.is_part]

@@ -13,7 +13,7 @@ The estimates are upper bounds of what simkit will run, from the design's own ti
   has risen (the charging time of the filter capacitors through the source impedance, an
   estimate derived here: about C |Z| pi/2 ln 10 for a full-wave rectifier), the LC overshoot
   and the timeline (warm-ups, load steps), capped by the start-up limit;
-- steady keying: two keying cycles per chunk, a few chunks;
+- steady keying: a lead-in and a keying cycle, twice (a slow circuit runs on);
 - regulation: three more steady states;
 - switch-off (``check`` only): a fixed 4000 points.
 """
@@ -29,8 +29,11 @@ from simkit.netlist.circuit import Circuit
 
 #: Steps per period assumed for the measuring step when the design does not fix it.
 TYPICAL_STEPS = 500
-#: Keying chunks assumed per keyed run.
-KEYED_CHUNKS = 3
+#: Lead-in-and-cycle spans assumed per keyed run.
+KEYED_CHUNKS = 2
+#: Time points a period of the keyed run takes, typically (analysis/keyed.py: at most 50 steps a period, but
+#: ngspice's error control adds points at every diode edge; 80 to 370 measured, docs/engine-notes.md#keyed-step).
+KEYED_POINTS = 300
 
 
 @dataclass(frozen=True)
@@ -87,8 +90,10 @@ def estimate(design: Design, circuit: Circuit, keyed_cycle: float = 0.0) -> list
     coarse = max(on_span - fine, 0.0) / T * startup.coarse_steps(design)
     costs.append(Cost("switch-on", on_span, fine / T * steps + coarse))
     if keyed_cycle > 0:
+        # At most a whole cycle of lead-in and a cycle, twice over (a slow circuit runs on); ngspice's own
+        # error control takes about KEYED_POINTS points a period at the keyed run's tolerance.
         span = max(math.ceil(2 * keyed_cycle / T), 4) * T * KEYED_CHUNKS
-        costs.append(Cost("steady keying", span, span / T * steps + costs[0].points))
+        costs.append(Cost("steady keying", span, span / T * KEYED_POINTS + costs[0].points))
     if design.regulator is not None:
         costs.append(Cost("regulation", 3 * 60 * T, 3 * costs[0].points))
     return costs

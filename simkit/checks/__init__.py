@@ -7,8 +7,9 @@ from dataclasses import dataclass
 from typing import Any
 
 from simkit import __version__
-from simkit.checks.corners import Corners, corner_names, run_corners
+from simkit.checks.corners import Corners, run_corners
 from simkit.checks.rules import Findings, Verdict, evaluate
+from simkit.checks.supply import supply_verdicts
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine
 from simkit.safety import CAUTIONS
@@ -47,7 +48,7 @@ class CheckReport:
         counts = {k: sum(1 for v in self.verdicts if v.verdict == k) for k in ("pass", "marginal", "fail")}
         return {**counts, "result": "fail" if counts["fail"] else ("marginal" if counts["marginal"] else "pass"),
                 "not_checked": list(self.findings.not_checked), "fuse": self.fuse,
-                "corners": [*self.corners.results, corner_names(self.corners.mains_tolerance)["off"]],
+                "corners": [*self.corners.results, self.corners.names["off"]],
                 "cautions": CAUTIONS}
 
     def to_json(self) -> dict[str, Any]:
@@ -57,11 +58,12 @@ class CheckReport:
 
 def suggest_fuse(design: Design, corners: Corners) -> dict[str, Any]:
     """A slow-blow fuse from the highest RMS current of the heavy corners (1.5 x, common practice)."""
-    cn = corner_names(corners.mains_tolerance)
+    cn = corners.names
     heavy = corners.results[cn["heavy"]]
     src = design.source
     if src.inverter is not None and "battery_peak_current_a" in heavy.metrics:
-        i = heavy.metrics["battery_peak_current_a"]
+        # The battery's low corner draws the most current for the same power.
+        i = max(r.metrics.get("battery_peak_current_a", 0.0) for r in corners.results.values())
         where = "in the battery lead, at the battery"
     elif src.transformer is not None:
         # Primary current from the secondary VA plus about 10 % for magnetising current and losses (common practice).
@@ -79,4 +81,5 @@ def suggest_fuse(design: Design, corners: Corners) -> dict[str, Any]:
 def check_design(design: Design, engine: Engine | None = None) -> CheckReport:
     corners = run_corners(design, engine)
     findings = evaluate(design, corners)
+    supply_verdicts(design, corners, findings)
     return CheckReport(design, corners, findings, suggest_fuse(design, corners))

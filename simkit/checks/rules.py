@@ -15,7 +15,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
-from simkit.checks.corners import Corners, corner_names
+from simkit.checks.corners import Corners
 from simkit.design.model import Design, PartRating, SeriesRegulator, ShuntRegulator
 from simkit.pipeline import DiodeResult, RegulatorResult, RunResult
 
@@ -85,7 +85,7 @@ def _quantity(r: RunResult, part: str, name: str) -> float | None:
 def evaluate(design: Design, corners: Corners) -> Findings:
     pol = design.checks
     f = Findings()
-    cn = corner_names(corners.mains_tolerance)
+    cn = corners.names
     steady = [cn["light"], cn["heavy"], cn["low"], cn["cold"]]
     loaded = [cn["light"], cn["heavy"], cn["low"]]
 

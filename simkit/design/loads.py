@@ -126,6 +126,9 @@ class KeyedLoad(LoadBase):
     fall: float = key("fall", "s", "time the load takes to fall at key-up", 5e-3, shown="5m", minimum=0, maximum=10)
     pushing: float | None = key("pushing_hz_per_v", "", "frequency pushing of an oscillator fed from this node, "
                                 "Hz/V (gives chirp_hz)", None, minimum=-1e9, maximum=1e9)
+    settle_band: float = key("settle_band", "%", "recovery_time_s: the output counts as recovered once its "
+                             "one-period mean stays within this share of the key-down step", 0.02, shown="2%",
+                             percent_max=0.5, label="settle band")
 
     @classmethod
     def refuse(cls, rd: Reader, t: Mapping[str, Any], path: str) -> None:
@@ -142,6 +145,8 @@ class KeyedLoad(LoadBase):
             rd.need(t, "rate", path, "the keying rate in Hz (with duty), or morse text and wpm")
 
     def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        if self.settle_band <= 0:
+            raise rd.fail(f"{path}.settle_band", "must be above 0%")
         if self.morse is not None:
             assert self.wpm is not None
             unit = DOT_AT_1_WPM / self.wpm

@@ -9,11 +9,14 @@ derived here, beside the keys it comes from.
 
 from __future__ import annotations
 
+import dataclasses
 import itertools
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, ClassVar
+
+import numpy as np
 
 from simkit.design.snubber import Snubber, snubber_key
 from simkit.design.vocab import Reader, key, show
@@ -261,6 +264,9 @@ class InverterSource(_Periodic):
                                         None, shown="period / 500", above=0)
     mains_tolerance: float | None = _tolerance()
     snubber: Snubber | None = snubber_key("the inverter's output")
+    peak_power_given: float | None = key("peak_power", "W", "surge rating: the output power it holds for a few "
+                                         "periods (switch-on), for `simkit check`", None, shown="2 x rated_power",
+                                         above=0, maximum=1e6, label="surge power rating")
 
     transformer: ClassVar[None] = None
     rated_current: ClassVar[None] = None
@@ -293,6 +299,11 @@ class InverterSource(_Periodic):
     def inverter(self) -> InverterSource:
         """The inverter's own parameters (this object)."""
         return self
+
+    @property
+    def peak_power(self) -> float:
+        """Surge rating, W: as given, or twice the rated power (common practice, docs/sources.md#supply-9)."""
+        return self.peak_power_given if self.peak_power_given is not None else PEAK_POWER_SHARE * self.rated_power
 
     @property
     def peak(self) -> float:
@@ -362,9 +373,74 @@ def source_foreign(name: str, chosen: type, owner: type | None) -> str:
     return "belongs to another source kind; an inverter has output_resistance"
 
 
+#: An inverter's surge rating when none is given, times its rated power (common practice).
+PEAK_POWER_SHARE = 2.0
+
+
+def worst_switch_on_phase(source: Source) -> float:
+    """The switch-on instant (degrees of the period, as ``switch_on_phase``) with the highest surge.
+
+    A sine: its crest, 90.  A square or modified sine: the start of the positive flat top, where
+    the source steps to its full voltage and stays there longest (derived here).
+    """
+    inv = source.inverter
+    if inv is None or inv.waveform == "sine":
+        return 90.0
+    return 90.0 - 90.0 * inv.duty
+
+
+def switch_on_words(source: Source, phase: float) -> str:
+    """What the source does at a switch-on phase, in words (how reports and check name that instant)."""
+    inv = source.inverter
+    ph = phase % 360.0
+    if inv is None or inv.waveform == "sine":
+        if abs(ph - 90.0) < 1e-9:
+            return f"{phase:g}° (the crest)"
+        return f"{phase:g}° of the sine"
+    start = 90.0 - 90.0 * inv.duty  # the positive flat top spans [start, 180 - start]
+    edge = inv.edge_time / inv.period * 360.0
+    kind = "square" if inv.waveform == "square" else "modified sine"
+    if abs(ph - start) <= edge:
+        where = "the start of the positive step"
+    elif start < ph < 180.0 - start:
+        where = "on the positive step"
+    elif start + 180.0 < ph < 360.0 - start:
+        where = "on the negative step"
+    else:
+        where = "in the zero interval"
+    return f"{phase:g}° of the period ({kind}: {where})"
+
+
+@dataclass(frozen=True)
+class Chemistry:
+    """What a battery chemistry brings: voltage corners per cell, Peukert's exponent, the rating's hours.
+
+    Common practice values (docs/sources.md#supply-8).
+    """
+
+    name: str
+    cell_voltage: float  # V, a typical open-circuit cell voltage: counts the cells of a battery
+    low: float  # V per cell: a battery nearly discharged
+    high: float  # V per cell: a battery on charge
+    peukert: float
+    rated_hours: float  # h: the discharge time the capacity is rated at
+
+
+CHEMISTRIES: dict[str, Chemistry] = {
+    "lead-acid": Chemistry("lead-acid", 2.05, 11.5 / 6, 2.40, 1.15, 20.0),
+    "lifepo4": Chemistry("lifepo4", 3.3, 3.0, 3.65, 1.03, 5.0),
+    "li-ion": Chemistry("li-ion", 3.9, 3.0, 4.2, 1.05, 5.0),
+}
+
+
 @dataclass(frozen=True, kw_only=True)
 class Battery:
-    """``[battery]``: what feeds an inverter."""
+    """``[battery]``: what feeds an inverter.
+
+    Runtime follows Peukert's law from the capacity rating (C ampere-hours over H hours): a
+    current I lasts H (C / (I H))^k hours; a current that varies (keying) uses up the battery at
+    the mean of I^k, so it lasts C^k H^(1-k) / mean(I^k) (docs/sources.md#supply-6).
+    """
 
     voltage: float = key("voltage", "V", "open-circuit battery voltage", required=True,
                          need='the open-circuit battery voltage, e.g. "12.6"', above=0, maximum=10e3)
@@ -374,7 +450,78 @@ class Battery:
                           above=0, maximum=1e6)
     usable_fraction: float = key("usable_fraction", "%", "share of the capacity you will use (e.g. 50% for "
                                  "lead-acid life)", 1.0, shown="100%", percent_max=1.0 + 1e-12)
+    chemistry: str = key("chemistry", "choice", '"lead-acid", "lifepo4" or "li-ion": the defaults of cells, low, '
+                         'high, peukert and rated_hours', "lead-acid", shown='"lead-acid"',
+                         choices=tuple(CHEMISTRIES))
+    cells_given: int | None = key("cells", "int", "cells in series", None,
+                                  shown="voltage / 2.05, 3.3 or 3.9 V (by chemistry), rounded", minimum=1,
+                                  maximum=5000)
+    low_given: float | None = key("low", "V", "open-circuit voltage of a nearly discharged battery: the low corner "
+                                  "of `check` and `run --battery low`", None,
+                                  shown="cells x 1.917, 3.0 or 3.0 V", above=0, maximum=10e3,
+                                  label="battery voltage, low corner")
+    high_given: float | None = key("high", "V", "battery voltage on charge: the high corner of `check` and "
+                                   "`run --battery high`", None, shown="cells x 2.40, 3.65 or 4.2 V", above=0,
+                                   maximum=10e3, label="battery voltage, high corner")
+    peukert_given: float | None = key("peukert", "", "Peukert exponent of the runtime (1: capacity independent of "
+                                      "the current)", None, shown="1.15, 1.03 or 1.05", minimum=1.0, maximum=2.0,
+                                      label="Peukert exponent")
+    rated_hours_given: float | None = key("rated_hours", "", "hours of discharge the capacity is rated at (20 for "
+                                          "the 20-hour rate)", None, shown="20, 5 or 5", above=0, maximum=1e4,
+                                          label="capacity rating, hours")
 
     def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
         if self.usable_fraction <= 0:
             raise rd.fail(f"{path}.usable_fraction", "must be above 0%")
+        if self.low > self.high:
+            raise rd.fail(f"{path}.low", f"the low corner ({self.low:g} V) is above the high one ({self.high:g} V)")
+
+    @property
+    def kind(self) -> Chemistry:
+        return CHEMISTRIES[self.chemistry]
+
+    @property
+    def cells(self) -> int:
+        """Cells in series: as given, or the voltage over the chemistry's typical cell voltage, rounded."""
+        if self.cells_given is not None:
+            return self.cells_given
+        return max(round(self.voltage / self.kind.cell_voltage), 1)
+
+    @property
+    def low(self) -> float:
+        """The low corner's open-circuit voltage, V."""
+        return self.low_given if self.low_given is not None else self.cells * self.kind.low
+
+    @property
+    def high(self) -> float:
+        """The high corner's voltage, V."""
+        return self.high_given if self.high_given is not None else self.cells * self.kind.high
+
+    @property
+    def peukert(self) -> float:
+        return self.peukert_given if self.peukert_given is not None else self.kind.peukert
+
+    @property
+    def rated_hours(self) -> float:
+        """Hours of the capacity rating."""
+        return self.rated_hours_given if self.rated_hours_given is not None else self.kind.rated_hours
+
+    def at(self, corner: str) -> Battery:
+        """This battery at a voltage corner: "low", "high" or "nominal"."""
+        if corner == "nominal":
+            return self
+        return dataclasses.replace(self, voltage=self.low if corner == "low" else self.high)
+
+    def runtime_h(self, current: float | np.ndarray, time: np.ndarray | None = None) -> float:
+        """Hours until the usable share of the capacity is used, at a current (A) or a current over ``time``
+        (s; the mean of I^k over it).  Infinite when nothing is drawn."""
+        k = self.peukert
+        if time is None:
+            load = max(float(current), 0.0) ** k
+        else:
+            i = np.maximum(np.asarray(current, dtype=float), 0.0) ** k
+            load = float(np.trapezoid(i, time) / (time[-1] - time[0])) if time[-1] > time[0] else float(i[0])
+        if load <= 0:
+            return math.inf
+        c, h = self.capacity, self.rated_hours
+        return self.usable_fraction * c**k * h ** (1 - k) / load

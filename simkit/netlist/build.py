@@ -181,8 +181,21 @@ class _Builder:
         neg = f"PULSE(0 -1 {spice((delay + T / 2) % T, 9)} {spice(e, 9)} {spice(e, 9)} {spice(max(on - e, e), 9)} " \
               f"{spice(T, 9)})"
         kind = "square" if inv.waveform == "square" else "three-level (modified sine)"
+        # A switch-on inside a step: PULSE is at its first value until its delay, so the step that is already
+        # under way at t = 0 is a pulse of its own (drives.step_under_way), in series with the others.
+        under = [(sign, rest) for sign, d in ((1, delay), (-1, (delay + T / 2) % T))
+                 if (rest := drives.step_under_way(d, on, e, T)) is not None]
         self.c.add(Element("VWAVEP", ("wavep", "0"), pos, comment=f"{kind}: positive step"))
-        self.c.add(Element("VWAVEN", ("wave", "wavep"), neg, comment=f"{kind}: negative step"))
+        top = "wavep"
+        for sign, rest in under:
+            name = "VWAVE0P" if sign > 0 else "VWAVE0N"
+            node = name[1:].lower()
+            self.c.add(Element(name, (node, top), f"PULSE(0 {sign} 0 {spice(e, 9)} {spice(e, 9)} "
+                               f"{spice(max(rest - e, 0.0), 9)} {spice(1e6, 9)})",
+                               comment=f"{kind}: the {'positive' if sign > 0 else 'negative'} step under way at "
+                               "switch-on"))
+            top = node
+        self.c.add(Element("VWAVEN", ("wave", top), neg, comment=f"{kind}: negative step"))
 
     def battery(self) -> None:
         """Battery and inverter losses: battery current and terminal voltage follow the load.

@@ -119,3 +119,14 @@ def steps_drive(steps: tuple[tuple[float, float], ...], edge: float) -> Drive:
         pts += [(t, level), (t + edge, i)]
         level = i
     return Drive(tuple(pts))
+
+
+def step_under_way(delay: float, on: float, edge: float, period: float) -> float | None:
+    """A square or three-level wave's step that a run starting at t = 0 finds under way.
+
+    The repeating step rises at ``delay`` (0 <= delay < period), holds for ``on`` (edges included
+    half) and falls over ``edge``.  When it wraps past the period's end, the run starts inside it:
+    the time from t = 0 until its fall begins (how long the step under way still holds), else None.
+    """
+    rest = delay + on - period  # the fall starts at delay + on (edges included half: rise e, top on - e)
+    return rest if rest > edge / 2 else None

@@ -17,7 +17,7 @@ from simkit.analysis.steady import MEASURE_PERIODS, SteadyState
 from simkit.design.model import Design, ResistorLoad, StepsLoad
 from simkit.engine.ngspice import Waveforms
 from simkit.netlist.circuit import Circuit
-from simkit.pipeline.dynamic import keyed_figures, regulator_figures, step_figures
+from simkit.pipeline.dynamic import inverter_figures, keyed_figures, regulator_figures, step_figures
 from simkit.pipeline.noise import attach_hum, attach_snubbers
 from simkit.pipeline.results import (
     CapacitorResult,
@@ -156,6 +156,8 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
     _start_figures(design, circuit, sc, start, m, warnings)
     if circuit.battery_nodes:
         _battery_figures(design, circuit, w, (t0, t1), m)
+    if design.source.inverter is not None:
+        inverter_figures(design, circuit, w, (t0, t1), start, sc, m, warnings)
     if keyed is not None:
         keyed_figures(design, keyed, m, warnings)
     elif any(isinstance(ld, StepsLoad) for ld in design.loads):

@@ -8,10 +8,11 @@ from dataclasses import replace
 
 import numpy as np
 
+from simkit import progress as progress_hook
 from simkit.analysis import metrics as mx
 from simkit.analysis import plan
 from simkit.analysis.keyed import keyed_steady
-from simkit.analysis.runs import end_state
+from simkit.analysis.runs import end_nodes, end_state
 from simkit.analysis.startup import start_limit, switch_on
 from simkit.analysis.steady import MEASURE_PERIODS, Progress, Solution, steady_state
 from simkit.design.loads import lighten
@@ -102,6 +103,8 @@ def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0, 
     :func:`simkit.pipeline.noise.wants_hash`) adds the high-frequency analysis.
     """
     eng = engine or get_engine()
+    if progress is None:  # whoever listens (simkit.progress) hears every analysis
+        progress = progress_hook.callback()
     circuit = build_circuit(design, phase_deg=0.0, vscale=vscale)
     check_cost(design, circuit)
     early: list[str] = []
@@ -124,11 +127,14 @@ def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0, 
     keyed = None
     if design.keyed:
         mean_circuit = build_circuit(design, phase_deg=0.0, vscale=vscale, mode="mean")
-        mean = steady_state(eng, design, mean_circuit, vscale, progress=progress)
+        # The key-down periodic state is close to the mean load's: Newton starts there, on its measuring step.
+        mean = steady_state(eng, design, mean_circuit, vscale, warm=steady.solution, progress=progress)
         keyed_circuit = build_circuit(design, phase_deg=0.0, vscale=vscale, mode="keyed")
         cycle = max(keying_drive(ld).period or 0.0 for ld in design.keyed)
-        keyed = keyed_steady(eng, design, keyed_circuit, end_state(mean_circuit, mean.final.waves), cycle,
-                             steady.steps)
+        jac = mean.solution.jacobian if mean.solution is not None else None
+        start_state = {**end_state(mean_circuit, mean.final.waves), **end_nodes(mean_circuit, mean.final.waves)}
+        keyed = keyed_steady(eng, design, keyed_circuit, start_state, cycle, steady.steps, jacobian=jac,
+                             progress=progress)
     result = figures(design, circuit, steady, start, start_circuit, keyed)
     result.warnings[:0] = early
     if design.regulator is not None and regulation:

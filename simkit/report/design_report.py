@@ -430,7 +430,7 @@ def _keyed_note(result: RunResult) -> str:
 def _steps_note(result: RunResult) -> str:
     return _figures_note(result, (("vout_keydown_v", "output at the heaviest step"),
                                   ("vout_keyup_v", "at the lightest"), ("sag_v", "sag"),
-                                  ("recovery_time_s", "recovery to 1 %"), ("overshoot_v", "overshoot"),
+                                  ("recovery_time_s", "recovery to 2 %"), ("overshoot_v", "overshoot"),
                                   ("vout_warmup_v", "highest before the loads draw"),
                                   ("cap_peak_warmup_v", "highest capacitor voltage before they draw")))
 

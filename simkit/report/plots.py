@@ -35,6 +35,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from simkit.design.sources import switch_on_words
 from simkit.figures import FIGURES
 from simkit.pipeline.results import DiodeResult
 from simkit.units import eng
@@ -493,6 +494,13 @@ def diode_currents_figure(result: RunResult) -> tuple[bytes, bytes]:
         return figure_bytes(fig)
 
 
+def _switch_on(result: RunResult, phase: float) -> str:
+    """The switch-on instant in words: degrees, and for a square or modified sine where in the wave."""
+    words = switch_on_words(result.design.source, phase)
+    return words if result.design.source.inverter is not None and result.design.source.inverter.waveform != "sine" \
+        else f"{phase:g}°"
+
+
 def switch_on_voltage_figure(result: RunResult) -> tuple[bytes, bytes]:
     """Output (and rectifier node) voltage from switch-on with every capacitor empty."""
     c = result.circuit
@@ -515,7 +523,7 @@ def switch_on_voltage_figure(result: RunResult) -> tuple[bytes, bytes]:
         everything = [s.v(c.output)] + ([s.v(c.rectified)] if c.rectified != c.output else [])
         top = max(float(np.max(v)) for v in everything)
         ax.set_ylim(bottom=min(0.0, float(np.min(s.v(c.output)))), top=max(top, steady) * 1.15)
-        style_axes(ax, f"Switch-on: output voltage, capacitors empty, source from {phase:g}°",
+        style_axes(ax, f"Switch-on: output voltage, capacitors empty, source from {_switch_on(result, phase)}",
                    f"time after switch-on ({_freq(result)} source)", "s", "voltage to the return", "V")
         legend_outside(ax)
         return figure_bytes(fig)
@@ -545,7 +553,7 @@ def switch_on_current_figure(result: RunResult) -> tuple[bytes, bytes]:
         ax.annotate(f"{name}: peak {eng(float(i_w[k]), 'A')}", (float(s.time[sel][k]), float(i_w[k])),
                     xytext=(10, -4), textcoords="offset points", ha="left", va="top", fontsize=8.0, color=INK)
         ax.set_ylim(top=float(np.max(i_w)) * 1.15)
-        style_axes(ax, f"Switch-on surge: diode currents, anode to cathode, source from {phase:g}°",
+        style_axes(ax, f"Switch-on surge: diode currents, anode to cathode, source from {_switch_on(result, phase)}",
                    f"time after switch-on, first {round(span / T)} periods", "s", "diode current", "A")
         legend_outside(ax)
         return figure_bytes(fig)
@@ -624,6 +632,12 @@ def key_down_intervals(t: np.ndarray, i: np.ndarray) -> list[tuple[float, float]
     return list(zip(starts, ends, strict=False))
 
 
+def _settle_band(result: RunResult) -> float:
+    """The keyed load's settle band (the share of the step recovery_time_s counts as settled)."""
+    ld = next((x for x in result.design.loads if x.kind == "keyed"), None)
+    return float(getattr(ld, "settle_band", 0.02))
+
+
 def keyed_figure(result: RunResult) -> tuple[bytes, bytes]:
     """The output while the load is keyed: over one whole keying cycle, the raw output (its band is
     the ripple) under its one-period mean, key-down shaded; then the longest key-down and its edges
@@ -646,7 +660,14 @@ def keyed_figure(result: RunResult) -> tuple[bytes, bytes]:
     sel = (t_run >= -1e-12) & (t_run <= c1 - c0 + 1e-12)
     t, v = t_run[sel], v_run[sel]
     grid = np.linspace(0.0, c1 - c0, 3000)
-    mean = one_period_mean(t_run, v_run, T, grid)
+
+    def period_mean(at: np.ndarray) -> np.ndarray:
+        """The one-period mean the keyed figures use (from the run's running integral when it has one)."""
+        if hasattr(keyed, "period_mean") and getattr(keyed, "areas", None):
+            return keyed.period_mean(circuit.output.lower(), at + c0, T)
+        return one_period_mean(t_run, v_run, T, at)
+
+    mean = period_mean(grid)
     senses = _load_senses(result, circuit)
     keyed_index = next((k for k, ld in enumerate(result.design.loads) if ld.kind == "keyed"), 0)
     ref = next((r for r in circuit.loads if r.index == keyed_index), None)
@@ -686,8 +707,7 @@ def keyed_figure(result: RunResult) -> tuple[bytes, bytes]:
         tz = t_run[zs] - a
         zgrid = np.linspace(z0, z1, 1500)
         ax.plot(*envelope(tz, v_run[zs]), color=RAW, lw=0.8, label="output, as simulated")
-        ax.plot(zgrid - a, one_period_mean(t_run, v_run, T, zgrid), color=PALETTE[0], lw=1.8,
-                label="one-period mean")
+        ax.plot(zgrid - a, period_mean(zgrid), color=PALETTE[0], lw=1.8, label="one-period mean")
         if whole:
             ax.axvspan(0.0, b - a, color=SHADE, lw=0, label="key down", zorder=0)
             for edge in (0.0, b - a):
@@ -695,8 +715,10 @@ def keyed_figure(result: RunResult) -> tuple[bytes, bytes]:
         level_limits(ax, v_run[zs], headroom=0.3)
         if whole:
             recovery = m.get("recovery_time_s", math.nan)
+            band = _settle_band(result)
             note(ax, f"longest key-down: {eng(b - a, 's')}"
-                 + (f"; recovery to 1 %: {eng(recovery, 's')}" if math.isfinite(recovery) else ""))
+                 + (f"; recovery (one-period mean within {percent(100 * band)} of the step): {eng(recovery, 's')}"
+                    if math.isfinite(recovery) else "; the one-period mean does not settle before key-up"))
         when = "time from the key-down edge" if whole else "time from the start of the keying cycle"
         style_axes(ax, "Close-up: the longest key-down and its edges", when, "s", "output voltage", "V")
         ax.set_xlim(z0 - a, z1 - a)
@@ -752,7 +774,7 @@ def run_figure_bytes(result: RunResult, fmt: str = "png") -> bytes:
         ax = axes[2]
         ax.plot(s.time, s.v(c.output), color=PALETTE[0], lw=1.4, label="output")
         ax.axhline(result.metrics["vout_dc_v"], color=MUTED, lw=0.9, ls="--", label="steady-state mean")
-        style_axes(ax, f"Switch-on from empty capacitors at {phase:g}° of the source: output voltage",
+        style_axes(ax, f"Switch-on from empty capacitors at {_switch_on(result, phase)}: output voltage",
                    "time after switch-on", "s", "output voltage", "V")
         legend_outside(ax)
 
