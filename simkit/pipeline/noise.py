@@ -103,14 +103,22 @@ def attach_hum(result: RunResult) -> None:
         if win is None:
             result.warnings.append("no key-down lasts a whole source period: the key-down hum is not given")
         else:
-            kw = keyed.run.waves
-            shifted = Waveforms(time=kw.time + keyed.run.offset, vectors=kw.vectors)
-            # The output still droops a little during key-down: a straight-line drift is taken out first.
-            result.keydown_harmonics = node_harmonics(keyed.circuit, shifted, *win, f, remove_drift=True)
-            top = spectrum.largest(result.keydown_harmonics[keyed.circuit.output])
-            if top is not None:
-                m["hum_keydown_dbv"] = top.dbv
-                m["hum_keydown_frequency_hz"] = top.frequency_hz
+            # The keying cycle itself is kept thinned (a few samples a period): the spectrum needs the
+            # period of the longest key-down that is simulated again at the measuring step, in full.
+            ref = keyed.refined
+            rt = None if ref is None else ref.waves.time + ref.offset
+            if rt is None or rt[0] > win[0] + 1e-9 * f ** -1 or rt[-1] < win[1] - 1e-9 * f ** -1:
+                result.warnings.append("the longest key-down was not simulated again in full: the key-down hum "
+                                       "is not given")
+            else:
+                assert ref is not None
+                shifted = Waveforms(time=rt, vectors=ref.waves.vectors)
+                # The output still droops a little during key-down: a straight-line drift is taken out first.
+                result.keydown_harmonics = node_harmonics(keyed.circuit, shifted, *win, f, remove_drift=True)
+                top = spectrum.largest(result.keydown_harmonics[keyed.circuit.output])
+                if top is not None:
+                    m["hum_keydown_dbv"] = top.dbv
+                    m["hum_keydown_frequency_hz"] = top.frequency_hz
     if "ib" in circuit.battery_nodes:
         result.battery_harmonics = spectrum.harmonics(w.time, w.v("ib"), t0, t1, f)
         top = spectrum.largest(result.battery_harmonics)
