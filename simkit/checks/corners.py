@@ -10,42 +10,79 @@
 - ``switch-off``: the source off and the load gone, from the cold corner's charge.
 
 "Light" and "heavy" use what the design says a load can do: a keyed load's key-up and
-key-down states, a stepped load's lightest and heaviest steps; a fixed load is what it is.
-Without ``mains_tolerance`` the mains corners run at nominal mains and say so.
+key-down states, a stepped load's lightest and heaviest steps.  Corners that would be the
+same circuit are one corner, run once and named once: a fixed load has one loaded corner
+("high mains, fixed load"), and a supply with no load at all one steady corner
+("high mains, no load").  Without ``mains_tolerance`` the mains corners run at nominal
+mains and say so.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 from simkit.analysis.discharge import Discharge, discharge
 from simkit.analysis.steady import end_state
-from simkit.design.loads import heavy, lighten
+from simkit.design.loads import heavy, lighten, varies
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine, get_engine
 from simkit.pipeline import RunResult, simulate
 
+#: The roles of the corners, in the order they are simulated and listed.
+ROLES = ("light", "heavy", "low", "cold", "on", "off")
+
 
 @dataclass
 class Corners:
-    results: dict[str, RunResult]  # by corner name
-    off: Discharge
+    results: dict[str, RunResult]  # by corner name (one entry per run)
+    off: Discharge | None
     mains_tolerance: float | None
+    names: dict[str, str] = field(default_factory=dict)  # role (ROLES) -> corner name; shared runs share a name
+    state: dict[str, float] = field(default_factory=dict)  # the cold corner's end state (where switch-off starts)
+
+    def __post_init__(self) -> None:
+        if not self.names:
+            self.names = corner_names(self.mains_tolerance)
 
 
-def corner_names(tol: float | None) -> dict[str, str]:
+def corner_names(tol: float | None, loads_vary: bool = True, loaded: bool = True) -> dict[str, str]:
+    """The name of each corner role; roles that are the same circuit get the same name.
+
+    Parameters
+    ----------
+    tol : float or None
+        The source's mains tolerance (None: the mains corners are at nominal mains).
+    loads_vary : bool
+        Some load has lighter and heavier states (keyed, stepped); else light and heavy are one corner.
+    loaded : bool
+        The design has a load at all; else the loaded corners and the cold one are one corner.
+    """
     hi = "high mains" if tol else "nominal mains (no mains_tolerance)"
     lo = "low mains" if tol else "nominal mains, low-mains corner skipped"
-    return {"light": f"{hi}, light load", "heavy": f"{hi}, heavy load", "low": f"{lo}, heavy load",
-            "cold": f"cold load, {hi}", "on": f"switch-on at the crest, {hi}", "off": "switch-off, load gone"}
+    if not loaded:
+        steady = f"{hi}, no load"
+        names = {"light": steady, "heavy": steady, "low": f"{lo}, no load", "cold": steady}
+    elif not loads_vary:
+        fixed = f"{hi}, fixed load"
+        names = {"light": fixed, "heavy": fixed, "low": f"{lo}, fixed load", "cold": f"cold load, {hi}"}
+    else:
+        names = {"light": f"{hi}, light load", "heavy": f"{hi}, heavy load", "low": f"{lo}, heavy load",
+                 "cold": f"cold load, {hi}"}
+    return {**names, "on": f"switch-on at the crest, {hi}", "off": "switch-off, load gone"}
+
+
+def design_corner_names(design: Design) -> dict[str, str]:
+    """:func:`corner_names` for a design."""
+    tol = design.source.mains_tolerance if design.source.kind != "inverter" else None
+    return corner_names(tol, any(varies(ld) for ld in design.loads), bool(design.loads))
 
 
 def run_corners(design: Design, engine: Engine | None = None) -> Corners:
     eng = engine or get_engine()
     tol = design.source.mains_tolerance if design.source.kind != "inverter" else None
     hi, lo = (1 + tol, 1 - tol) if tol else (1.0, 1.0)
-    names = corner_names(tol)
+    names = design_corner_names(design)
     # Corners need no load or line regulation runs, and a corner that never settles (a glow tube that keeps
     # striking and going out) is cut at 100 periods with a warning.
     limit = min(design.simulation.max_settle_time or math.inf, 100 / design.source.frequency)
@@ -54,13 +91,22 @@ def run_corners(design: Design, engine: Engine | None = None) -> Corners:
     light = replace(design, loads=tuple(lighten(ld) for ld in design.loads))
     heavy_d = replace(design, loads=tuple(heavy(ld) for ld in design.loads), simulation=crest)
     cold = replace(design, loads=())
-    res: dict[str, RunResult] = {
-        names["light"]: simulate(light, eng, vscale=hi, regulation=False),
-        names["heavy"]: simulate(heavy_d, eng, vscale=hi, regulation=False),
-    }
+    res: dict[str, RunResult] = {}
+    if names["light"] != names["heavy"]:
+        res[names["light"]] = simulate(light, eng, vscale=hi, regulation=False)
+    res[names["heavy"]] = simulate(heavy_d, eng, vscale=hi, regulation=False)
     if tol:
         res[names["low"]] = simulate(heavy_d, eng, vscale=lo, regulation=False)
-    res[names["cold"]] = simulate(cold, eng, vscale=hi, regulation=False)
+    if names["cold"] not in res:
+        res[names["cold"]] = simulate(cold, eng, vscale=hi, regulation=False)
     charged = res[names["cold"]]
-    off = discharge(eng, design, end_state(charged.circuit, charged.steady.final.waves))
-    return Corners(res, off, tol)
+    state = end_state(charged.circuit, charged.steady.final.waves)
+    off = discharge(eng, design, state)
+    return Corners(res, off, tol, names, state)
+
+
+def nominal_corners(result: RunResult) -> Corners:
+    """One run taken as every corner (``simkit run``'s count of ratings exceeded at nominal conditions)."""
+    names = {role: "nominal" for role in ROLES}
+    names["on"] = "switch-on, nominal"
+    return Corners({"nominal": result}, None, None, names)
