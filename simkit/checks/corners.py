@@ -105,6 +105,15 @@ def run_corners(design: Design, engine: Engine | None = None) -> Corners:
     return Corners(res, off, tol, names, state)
 
 
+def heavy_corner(design: Design) -> tuple[Design, float]:
+    """The heavy corner's design (loads at their heaviest, switch-on at the crest) and its mains scale, for
+    simulating a changed design at that corner again (a fix that must be checked by simulation)."""
+    tol = design.source.mains_tolerance if design.source.kind != "inverter" else None
+    limit = min(design.simulation.max_settle_time or math.inf, 100 / design.source.frequency)
+    sim = replace(design.simulation, max_settle_time=limit, switch_on_phase=90.0)
+    return replace(design, loads=tuple(heavy(ld) for ld in design.loads), simulation=sim), (1 + tol if tol else 1.0)
+
+
 def nominal_corners(result: RunResult) -> Corners:
     """One run taken as every corner (``simkit run``'s count of ratings exceeded at nominal conditions)."""
     names = {role: "nominal" for role in ROLES}

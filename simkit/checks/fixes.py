@@ -29,7 +29,7 @@ from simkit.engine.ngspice import Engine, get_engine
 from simkit.parts import diodes as diode_library
 from simkit.parts import regulators as regulator_library
 from simkit.parts import tubes as tube_library
-from simkit.pipeline import CapacitorResult
+from simkit.pipeline import CapacitorResult, RegulatorResult
 from simkit.stock import StockError, at_least, at_most, capacitor_volts, resistor_watts
 from simkit.units import eng
 
@@ -44,6 +44,8 @@ BALANCING_MAX = 220e3
 MAX_STRING = 20
 #: Tries of the bleeder search (each one a switch-off simulation).
 BLEEDER_TRIES = 8
+#: Tries of a quicker soft start for a pass device (each one a simulation of the heavy corner).
+SOFT_START_TRIES = 4
 
 Fixer = Callable[["FixContext", Verdict], Fix | None]
 #: Fixers by verdict code.
@@ -208,22 +210,15 @@ def _diode_fix(ctx: FixContext) -> Fix | None:
     if current.name != "inline":
         candidates += sorted((p.model() for p in diode_library.DIODES.values() if p.name != current.name),
                              key=lambda m: (m.ratings.ifav or 0.0, m.ratings.vrrm or 0.0, m.ratings.ifsm or 0.0))
-    best: tuple[int, int, DiodeModel] | None = None
-    for rank, model in enumerate(candidates):
-        for n in range(1, MAX_STRING + 1):
-            if _fits(model, need, aim, derate, n):
-                if best is None or (n, rank) < (best[0], best[1]):
-                    best = (n, rank, model)
-                break
+    best = _best_string(candidates, need, aim, derate)
     sets: list[Assignment] = []
     words: list[str] = []
     if best is not None:
-        n, _, model = best
-    else:  # no part takes the surge: keep the part, string it for the voltage, and limit the surge
-        model = current
-        vrrm = current.ratings.vrrm
-        n = max(1, math.ceil(need.string_v / (derate * aim * vrrm))) if vrrm and need.string_v else rect.series
-        n = min(n, MAX_STRING)
+        n, model = best
+    else:  # no part takes the surge: the part and string for the rest, the surge limited by a series resistance
+        rest = _Needs(need.string_v, 0.0, 0.0, need.ifav, need.failing - {"diode.surge", "diode.i2t"})
+        found = _best_string(candidates, rest, aim, derate, prefer_surge=True)
+        n, model = found if found is not None else (rect.series, current)
     if model.name != current.name:
         sets.append(Assignment("rectifier.diode", model.name, keep="first"))
         r = model.ratings
@@ -246,6 +241,21 @@ def _diode_fix(ctx: FixContext) -> Fix | None:
     if not sets:
         return None
     return Fix(tuple(sets), "; ".join(words))
+
+
+def _best_string(candidates: list[DiodeModel], need: _Needs, aim: float, derate: float,
+                 prefer_surge: bool = False) -> tuple[int, DiodeModel] | None:
+    """The fewest diodes per position, then the current part (first candidate), then the smaller part; or, with
+    ``prefer_surge``, the largest surge rating among the fewest."""
+    best: tuple[tuple[float, ...], int, DiodeModel] | None = None
+    for rank, model in enumerate(candidates):
+        for n in range(1, MAX_STRING + 1):
+            if _fits(model, need, aim, derate, n):
+                key = (n, -(model.ratings.ifsm or 0.0), rank) if prefer_surge else (n, rank)
+                if best is None or key < best[0]:
+                    best = (key, n, model)
+                break
+    return None if best is None else (best[1], best[2])
 
 
 def _sharing_r(model: DiodeModel) -> float:
@@ -471,40 +481,88 @@ def _inverter(ctx: FixContext, v: Verdict) -> Fix | None:
 def _headroom(ctx: FixContext, v: Verdict) -> Fix | None:
     reg = ctx.design.regulator
     assert isinstance(reg, SeriesRegulator)
-    short = v.limit * (1 + ctx.design.checks.marginal) * (1 + SLACK) - v.value
+    want = v.limit * (1 + ctx.design.checks.marginal) * (1 + SLACK)
+    corner = ctx.corners.results.get(v.corner)
+    ref = reg.reference - (want - v.value)
+    if corner is not None:
+        # In dropout the headroom says little: from the input's lowest point, the headroom wanted, and the gate's
+        # voltage at the load current (square law, reg-4), the reference that brings it back into regulation.
+        w = corner.steady.final.waves
+        t0, t1 = corner.window
+        sel = (w.time >= t0) & (w.time <= t1)
+        vin_min = float(w.v("raw")[sel].min())
+        current = max(corner.metrics.get("iout_dc_a", 0.0), 1e-6)
+        vgs = reg.device.vto + math.sqrt(2 * current / reg.device.kp)
+        ref = min(ref, vin_min - want + vgs)
     if reg.reference_given is not None:
-        ref = math.floor(reg.reference - short)
-        return Fix((Assignment("regulator.reference", float(ref), keep="min"),),
-                   f"a {ref:g} V reference: the output falls by {eng(reg.reference - ref, 'V')} and the regulator "
-                   "keeps its headroom (or raise the supply)")
+        new = math.floor(ref)
+        return Fix((Assignment("regulator.reference", float(new), keep="min"),),
+                   f"a {new:g} V reference: the output falls by {eng(reg.reference - new, 'V')} and the regulator "
+                   f"keeps {eng(v.limit, 'V')} of headroom (or raise the supply)")
     z = reg.zener
-    each = at_most((reg.reference - short) / z.count, "E24")
+    each = at_most(ref / z.count, "E24")
     return Fix((Assignment("regulator.zener.voltage", each, keep="min"),),
                f"{z.count} x {each:g} V zeners: the output falls to keep the headroom (or raise the supply)")
 
 
 def _mosfet_fix(ctx: FixContext) -> Fix | None:
+    """A library MOSFET that takes every pass-device rule; or, when only the switch-on peak is too much for the
+    largest one, that device with a quicker soft start (a smaller reference filter), checked by simulation."""
     pol = ctx.design.checks
     need = {"pass.dissipation": 0.0, "pass.vds": 0.0, "pass.id": 0.0}
     for v in ctx.of(*need):
         need[v.code] = max(need[v.code], v.value)
     aim = ctx.aim
-    fits = [m for m in regulator_library.MOSFETS.values()
-            if need["pass.dissipation"] <= aim * pol.resistor_power * m.pd and need["pass.vds"] <= aim *
-            pol.diode_voltage * m.vdss and need["pass.id"] <= aim * m.id_max]
     reg = ctx.design.regulator
     assert isinstance(reg, SeriesRegulator)
-    fits = [m for m in fits if m.name != reg.device.name]
-    if not fits:
-        soft = " or, when the peak is at switch-on, a quicker soft start (a smaller regulator.filter_c)" \
-            if any(v.corner == ctx.corners.names["on"] for v in ctx.of("pass.dissipation")) else ""
-        return Fix((), f"no MOSFET of the library takes {eng(need['pass.dissipation'], 'W')} and "
-                       f"{eng(need['pass.vds'], 'V')}: give a larger one inline (device = {{ vto, kp, vdss, id, pd "
-                       f"}}){soft}")
-    m = min(fits, key=lambda m: (m.pd, m.vdss))
-    return Fix((Assignment("regulator.device", m.name, keep="first"),),
-               f"{m.name} (PD {m.pd:g} W at a 25 C case, VDSS {m.vdss:g} V, ID {m.id_max:g} A) on a heatsink that "
-               "keeps its case near 25 C")
+
+    def takes(m: regulator_library.Mosfet, dissipation: float) -> bool:
+        return dissipation <= aim * pol.resistor_power * m.pd and need["pass.vds"] <= aim * pol.diode_voltage * \
+            m.vdss and need["pass.id"] <= aim * m.id_max
+
+    fits = [m for m in regulator_library.MOSFETS.values() if takes(m, need["pass.dissipation"])
+            and m.name != reg.device.name]
+    if fits:
+        m = min(fits, key=lambda m: (m.pd, m.vdss))
+        return Fix((Assignment("regulator.device", m.name, keep="first"),),
+                   f"{m.name} (PD {m.pd:g} W at a 25 C case, VDSS {m.vdss:g} V, ID {m.id_max:g} A) on a heatsink "
+                   "that keeps its case near 25 C")
+    steady = max((r.part("MPASS", RegulatorResult).dissipation_peak_w for r in ctx.corners.results.values()
+                  if "MPASS" in r.parts), default=0.0)
+    big = [m for m in regulator_library.MOSFETS.values() if takes(m, steady)]
+    if big:
+        m = max(big, key=lambda m: m.pd)
+        soft = _soft_start(ctx, reg, m, aim * pol.resistor_power * m.pd)
+        if soft is not None:
+            sets = ([Assignment("regulator.device", m.name, keep="first")] if m.name != reg.device.name else []) + \
+                [Assignment("regulator.filter_c", soft[0], keep="min")]
+            return Fix(tuple(sets), f"{m.name} on a heatsink, and a quicker soft start ({eng(soft[0], 'F')} in the "
+                       f"reference filter): the output follows the input sooner, so the switch-on peak falls to "
+                       f"{eng(soft[1], 'W')}")
+    return Fix((), f"no MOSFET of the library takes {eng(need['pass.dissipation'], 'W')} and "
+                   f"{eng(need['pass.vds'], 'V')}: give a larger one inline (device = {{ vto, kp, vdss, id, pd }})")
+
+
+def _soft_start(ctx: FixContext, reg: SeriesRegulator, device: regulator_library.Mosfet,
+                limit: float) -> tuple[float, float] | None:
+    """The largest E12 reference-filter capacitor (a few steps down) whose switch-on peak is within ``limit``."""
+    from simkit.checks.corners import heavy_corner
+    from simkit.design.model import PassDevice
+    from simkit.pipeline import simulate
+
+    dev = PassDevice(vto=device.vto, kp=device.kp, vdss=device.vdss, id_max=device.id_max, pd=device.pd,
+                     name=device.name, source=device.source)
+    design, vscale = heavy_corner(ctx.design)
+    engine = ctx.engine or get_engine()
+    c = reg.filter_c
+    for _ in range(SOFT_START_TRIES):
+        c = at_most(c / 2.1, "E12")
+        trial = replace(design, regulator=replace(reg, filter_c=c, device=dev))
+        peak = simulate(trial, engine, vscale=vscale, regulation=False).part(
+            "MPASS", RegulatorResult).switch_on_dissipation_peak_w or 0.0
+        if peak <= limit:
+            return c, peak
+    return None
 
 
 @fixer("pass.dissipation")
