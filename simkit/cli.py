@@ -170,7 +170,7 @@ def check(design: str, overrides: tuple[str, ...], as_json: bool, fix_only: bool
         click.echo(f"simkit: {len(rep.fixes)} settings fix {s['fail']} fail and {s['marginal']} marginal verdicts; "
                    "apply them and check again" if rep.fixes else "simkit: nothing to fix", err=True)
     else:
-        click.echo(check_text.report_text(rep, check_text.command_line(design, overrides)), nl=False)
+        click.echo(check_text.report_text(rep, check_text.command_line(design, overrides, rep)), nl=False)
     if rep.failed:
         raise click.exceptions.Exit(1)
 

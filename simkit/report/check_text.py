@@ -159,6 +159,9 @@ def nominal_line(findings: Any) -> str:
     return f"check: {head}; run `simkit check` for the corners (high and low mains, switch-on, switch-off)\n"
 
 
-def command_line(design: str, overrides: tuple[str, ...] | list[str]) -> str:
-    """``simkit check DESIGN --set ...`` as the user ran it, quoted for a POSIX shell."""
-    return " ".join(["simkit check", shlex.quote(design), *[f"--set {shlex.quote(o)}" for o in overrides]])
+def command_line(design: str, overrides: tuple[str, ...] | list[str], rep: CheckReport | None = None) -> str:
+    """``simkit check DESIGN --set ...`` as the user ran it, quoted for a POSIX shell; with ``rep``, without the
+    overrides its fixes replace (the fixes' own --set line follows it)."""
+    fixed = {a.path for a in rep.fixes} if rep is not None else set()
+    kept = [o for o in overrides if o.partition("=")[0].strip() not in fixed]
+    return " ".join(["simkit check", shlex.quote(design), *[f"--set {shlex.quote(o)}" for o in kept]])
