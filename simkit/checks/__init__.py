@@ -61,9 +61,21 @@ class CheckReport:
         return set_line(self.fixes)
 
     def worst(self, count: int = 3) -> list[Verdict]:
-        """The failures furthest beyond their limits (then the marginal ones closest to theirs), worst first."""
-        bad = [v for v in self.verdicts if v.verdict != "pass"]
-        return sorted(bad, key=lambda v: (v.verdict != "fail", v.margin if v.margin is not None else -1.0))[:count]
+        """The worst verdict of each failing rule, worst first: fails above a part's absolute rating, then the
+        others, each by how far beyond its limit (then the marginal ones); ``count`` of them."""
+        def key(v: Verdict) -> tuple[int, float]:
+            times = v.times_limit
+            beyond = (v.limit / v.value if v.value else math.inf) if v.minimum else (times or 0.0)
+            rank = 0 if v.exceeds == "rating" else 1 if v.verdict == "fail" else 2
+            return rank, -beyond
+
+        seen: set[str] = set()
+        out = []
+        for v in sorted((v for v in self.verdicts if v.verdict != "pass"), key=key):
+            if v.rule not in seen:
+                seen.add(v.rule)
+                out.append(v)
+        return out[:count]
 
     def summary(self) -> dict[str, Any]:
         counts = {k: sum(1 for v in self.verdicts if v.verdict == k) for k in ("pass", "marginal", "fail")}

@@ -78,7 +78,8 @@ class Verdict:
                 "margin": clean(self.margin), "verdict": self.verdict, "corner": self.corner, "unit": self.unit,
                 "basis": self.basis, "rating": clean(self.rating), "exceeds": self.exceeds or None,
                 "times_limit": clean(times),
-                "code": self.code, "fix": None if self.fix is None else self.fix.to_json()}
+                "limit_kind": self.limit_kind, "code": self.code,
+                "fix": None if self.fix is None else self.fix.to_json()}
 
 
 @dataclass(frozen=True)

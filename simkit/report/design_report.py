@@ -74,7 +74,8 @@ PART_HEADERS: dict[str, str] = {
 
 #: Groups of the parts table: heading, and the roles that belong to it.
 PART_GROUPS: tuple[tuple[str, tuple[str, ...]], ...] = (
-    ("Winding", ("winding", "inverter output", "*output", "winding resistance", "winding leakage inductance")),
+    ("Winding", ("winding", "inverter output", "*output", "winding resistance", "winding leakage inductance",
+                 "transformer winding", "heater winding")),
     ("Rectifier diodes", ("rectifier diode",)),
     ("Capacitors", ("stage capacitor", "reservoir capacitor", "filter capacitor")),
     ("Chokes and resistors", ("choke", "filter resistor")),
@@ -471,6 +472,8 @@ def _verdict_row(v: dict[str, Any], bases: list[str]) -> list[str]:
     if verdict == "fail" and isinstance(times, (int, float)) and times >= 2 and unit != "missing":
         m = f"x{times:.2g}" if times < 10 else f"x{times:.0f}"
     rating = v.get("rating")
+    if not isinstance(rating, (int, float)) and v.get("limit_kind") == "rating" and unit != "missing":
+        rating = v.get("limit")  # the limit is the part's rating itself
     rating_cell = _value(rating, unit, rule) if isinstance(rating, (int, float)) else ""
     basis = str(v.get("basis", "") or "")
     ref = ""
@@ -509,8 +512,8 @@ def _fix_section(doc: Document, checks: Any) -> None:
         return
     groups: dict[str, list[str]] = {}
     for v in bad:
-        sets = " ".join(a.text() for a in v.fix.sets)
-        key = v.fix.reason + (f" (`{sets}`)" if sets else "")
+        sets = ", ".join(f"--set {a.text()}" for a in v.fix.sets)
+        key = v.fix.reason + (f"; set: {sets}" if sets else " (no design key to set)")
         groups.setdefault(key, []).append(f"{v.part} {v.rule}")
     doc.paragraph("To fix (stock values; apply them all, then check again):")
     doc.bullets([f"{', '.join(which)}: {reason}" for reason, which in groups.items()], markup=False)
@@ -534,8 +537,14 @@ def _verdict_summary(checks: Any, check_error: str = "") -> str:
         items = []
         for v in worst:
             times = v.times_limit
-            how = f"x{times:.2g} its limit" if times is not None and v.verdict == "fail" and not v.minimum and \
-                times >= 2 and v.unit != "missing" else f"limit {_value(v.limit, v.unit, v.rule)}"
+            if v.unit == "missing":
+                how = "none fitted"
+            elif v.exceeds == "rating" and v.rating is not None:
+                how = f"rated {_value(v.rating, v.unit, v.rule)}"
+            elif times is not None and v.verdict == "fail" and not v.minimum and times >= 2:
+                how = f"x{times:.2g} its limit of {_value(v.limit, v.unit, v.rule)}"
+            else:
+                how = f"limit {_value(v.limit, v.unit, v.rule)}"
             items.append(f"{_plain(v.part)} {_plain(v.rule)} {_value(v.value, v.unit, v.rule)} ({how})")
         head += ". Worst: " + "; ".join(items)
     return head + "."
