@@ -112,14 +112,13 @@ class Rectifier:
         if self.series > 1 and self.diode.is_vacuum:
             raise rd.fail(f"{path}.series", "strings of diodes are for silicon diodes; a vacuum rectifier is one "
                           "tube per position")
+        if self.sharing is not None and self.series < 2:
+            raise rd.fail(f"{path}.sharing", "a sharing resistor shares the voltage of a string: set series = 2 or "
+                          "more")
 
 
 def _refuse_string(rd: Reader, t: Mapping[str, Any], path: str) -> None:
-    """Sharing resistors belong to a string of two or more diodes."""
-    series = t.get("series", 1)
-    if "sharing" in t and isinstance(series, int) and not isinstance(series, bool) and series < 2:
-        raise rd.fail(f"{path}.sharing", "a sharing resistor shares the voltage of a string: set series = 2 or "
-                      "more")
+    """Sharing resistors' rating belongs to sharing resistors."""
     if "sharing_rating" in t and "sharing" not in t:
         raise rd.fail(f"{path}.sharing_rating", "needs sharing (the resistance across each diode of the string)")
 
