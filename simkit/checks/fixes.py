@@ -30,7 +30,7 @@ from simkit.parts import diodes as diode_library
 from simkit.parts import regulators as regulator_library
 from simkit.parts import tubes as tube_library
 from simkit.pipeline import CapacitorResult, RegulatorResult
-from simkit.stock import StockError, at_least, at_most, capacitor_volts, resistor_watts
+from simkit.stock import StockError, at_least, at_most, between, capacitor_volts, resistor_watts
 from simkit.units import eng
 
 #: Extra headroom a fix aims for beyond the marginal band: the fixed design's figures move a little.
@@ -42,6 +42,9 @@ SHARING_OHMS_PER_VOLT = 500.0
 BALANCING_MAX = 220e3
 #: The most diodes a string fix proposes per position.
 MAX_STRING = 20
+#: Above this a bleeder is best made of several resistors in series: a single resistor's voltage rating is
+#: typically 250-750 V (common practice; docs/sources.md#num-8).
+RESISTOR_VOLTS = 500.0
 #: Tries of the bleeder search (each one a switch-off simulation).
 BLEEDER_TRIES = 8
 #: Tries of a quicker soft start for a pass device (each one a simulation of the heavy corner).
@@ -95,7 +98,11 @@ def propose(design: Design, corners: Corners, findings: Findings, engine: Engine
     for v in findings.verdicts:
         if v.verdict != "pass" and v.fix is None:
             make = FIXERS.get(v.code)
-            fx = make(ctx, v) if make is not None else None
+            try:
+                fx = make(ctx, v) if make is not None else None
+            except StockError as exc:  # a rating beyond any stock part: the design itself must change
+                fx = Fix((), f"{exc}: no stock part takes it; change the design (less stored charge, a lower "
+                             "voltage or current)")
             if fx is None:
                 fx = Fix((), "no automatic fix for this rule: change the part or the design by hand")
             v = replace(v, fix=fx)
@@ -327,11 +334,32 @@ def _tube_fix(ctx: FixContext) -> Fix | None:
         if ok and part.name != current:
             fits.append(part)
     if not fits:
-        return Fix((), "no tube of the library meets these ratings: use silicon diodes, or lower the load")
+        return _silicon_instead(ctx, need)
     part = min(fits, key=lambda p: (p.ratings.dc_current or 0.0, p.ratings.piv or 0.0))
     return Fix((Assignment("rectifier.diode", part.name, keep="first"),),
                f"{part.name} (PIV {part.ratings.piv:g} V, {part.ratings.peak_current:g} A peak, "
                f"{(part.ratings.dc_current or 0) * 1e3:g} mA DC)")
+
+
+def _silicon_instead(ctx: FixContext, need: dict[str, float]) -> Fix:
+    """No tube takes it: silicon diodes in its place (a solid-state replacement), strung for the voltage."""
+    aim = ctx.aim
+    derate = ctx.design.checks.diode_voltage
+    piv = max(need.get("tube.piv", 0.0), max((v.value for v in ctx.of("tube.piv")), default=0.0))
+    dc = need.get("tube.dc_current", 0.0)
+    wants = _Needs(string_v=piv, ifav=dc, failing={"diode.reverse_voltage"} if piv else set())
+    models = sorted((p.model() for p in diode_library.DIODES.values()),
+                    key=lambda m: (m.ratings.ifav or 0.0, m.ratings.vrrm or 0.0))
+    found = _best_string(models, wants, aim, derate, prefer_surge=True)
+    if found is None:
+        return Fix((), "no tube or diode of the library takes these ratings: lower the voltage or the load")
+    n, model = found
+    sets = [Assignment("rectifier.diode", model.name, keep="first")]
+    if n > 1:
+        sets += [Assignment("rectifier.series", n), *_sharing(ctx, model, n, piv)]
+    return Fix(tuple(sets), f"no tube of the library takes {eng(piv, 'V')} in reverse and {eng(dc, 'A')}: silicon "
+               f"diodes in its place ({n} x {model.name} per plate), with the heater winding freed; the output "
+               "rises by the tube's drop")
 
 
 @fixer("tube.piv")
@@ -627,7 +655,8 @@ def _zener(ctx: FixContext, v: Verdict) -> Fix | None:
 
 
 def _bleeder_fix(ctx: FixContext) -> Fix | None:
-    """The largest E12 bleeder that empties every capacitor in time, checked by simulating the switch-off."""
+    """The largest E12 bleeder that empties every capacitor in time, found by simulating the switch-off again from
+    the same charge (a bisection over the E12 values around an estimate)."""
     d = ctx.design
     pol = d.checks
     off = ctx.corners.off
@@ -638,10 +667,9 @@ def _bleeder_fix(ctx: FixContext) -> Fix | None:
     v0 = max(off.start_v.values())
     if d.bleeder is not None and math.isfinite(worst) and worst > 0:
         guess = d.bleeder.r * target / worst
-    else:
+    else:  # every capacitor in parallel: an underestimate of R when some are in series (a multiplier's)
         total_c = sum(c.value for c in off.circuit.capacitors if c.is_part)
         guess = target / (total_c * math.log(max(v0, pol.safe_voltage * 1.01) / pol.safe_voltage))
-    r = at_most(guess, "E12")
     engine = ctx.engine or get_engine()
     base = d
     if any(v.code == "capacitor.balancing" and v.verdict != "pass" for v in ctx.verdicts):
@@ -649,19 +677,34 @@ def _bleeder_fix(ctx: FixContext) -> Fix | None:
         r_bal = next((a.value for a in balancing.sets if a.path == "rectifier.balancing"), None) if balancing else None
         if isinstance(r_bal, float):
             base = replace(d, rectifier=replace(d.rectifier, balancing=r_bal))
+    runs: dict[float, float] = {}
+
+    def slowest(r: float) -> float:
+        if r not in runs:
+            trial = replace(base, bleeder=replace(d.bleeder, r=r) if d.bleeder else Bleeder(r=r))
+            runs[r] = max(discharge(engine, trial, ctx.corners.state).time_to_safe.values())
+        return runs[r]
+
+    ladder = between(guess / 30.0, guess * 30.0, "E12")
+    lo, hi = 0, len(ladder) - 1  # find the largest passing value: slowest() falls as R falls
+    if slowest(ladder[lo]) > target:
+        return Fix((), f"no bleeder down to {eng(ladder[lo], 'Ω')} empties the capacitors in time: check that every "
+                       "capacitor has a path to it, or store less charge")
     for _ in range(BLEEDER_TRIES):
-        trial = replace(base, bleeder=replace(d.bleeder, r=r) if d.bleeder else Bleeder(r=r))
-        run = discharge(engine, trial, ctx.corners.state)
-        if max(run.time_to_safe.values()) <= target:
+        if hi - lo <= 1:
             break
-        r = at_most(r * 0.999, "E12")
-    else:
-        return Fix((), "no bleeder found that empties the capacitors in time: check that every capacitor has a "
-                       "path to it")
+        mid = (lo + hi) // 2
+        if slowest(ladder[mid]) <= target:
+            lo = mid
+        else:
+            hi = mid
+    r = ladder[hi] if slowest(ladder[hi]) <= target else ladder[lo]
     w = _watts(ctx, v0**2 / r)
+    string = f"; across {eng(v0, 'V')} make it of resistors in series, each within its voltage rating" \
+        if v0 > RESISTOR_VOLTS else ""
     return Fix((Assignment("bleeder.r", r, keep="min"), Assignment("bleeder.rating.w", w)),
                f"a {eng(r, 'Ω')} {w:g} W bleeder empties every capacitor below {pol.safe_voltage:g} V within "
-               f"{max(run.time_to_safe.values()):.2g} s (it dissipates {eng(v0**2 / r, 'W')} from {eng(v0, 'V')})")
+               f"{slowest(r):.2g} s (it dissipates {eng(v0**2 / r, 'W')} from {eng(v0, 'V')}){string}")
 
 
 @fixer("discharge")
