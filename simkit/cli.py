@@ -148,6 +148,7 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
             click.echo(json.dumps(doc, indent=2))
         else:
             click.echo(run_table(result), nl=False)
+            _nominal_verdict(result)
         if out is not None:
             from simkit.report.plots import run_figure_bytes
 
@@ -175,6 +176,15 @@ def _write_probes(result: Any, probes: tuple[str, ...], out: Any) -> None:
 
         names = write_probes(result, probes, out)
         click.echo(f"simkit: wrote {', '.join(names)} in {out.path}", err=True)
+
+
+def _nominal_verdict(result: Any) -> None:
+    """``run``'s closing line: the ratings exceeded at nominal conditions (no extra simulation)."""
+    from simkit.checks import nominal_check
+    from simkit.report.check_text import nominal_line
+
+    click.echo("")
+    click.echo(nominal_line(nominal_check(result)), nl=False)
 
 
 @cli.command()
@@ -226,22 +236,32 @@ def _node_map(design: Any, output: str | None, force: bool) -> None:
 @click.argument("design", type=click.Path())
 @click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
 @click.option("--json", "as_json", is_flag=True, help="Print exactly one JSON document on stdout.")
+@click.option("--fix", "fix_only", is_flag=True, help="Print only the --set options that fix every fail and "
+              "marginal verdict, ready to paste after `simkit check DESIGN` (then check again).")
 @click.option("--quiet", is_flag=True, help=QUIET_HELP)
-def check(design: str, overrides: tuple[str, ...], as_json: bool, quiet: bool) -> None:
-    """Check every part against its ratings at the worst corners, and the discharge after switch-off.
+def check(design: str, overrides: tuple[str, ...], as_json: bool, fix_only: bool, quiet: bool) -> None:
+    """Check every part against its ratings at the worst corners, and the discharge after switch-off;
+    each fail and marginal verdict says what to fit (stock values, as --set options).
 
     Exit status 1 when any verdict is fail, so scripts can gate on it.
     """
     from simkit.checks import check_design
-    from simkit.report.check_text import report_text
+    from simkit.report import check_text
 
+    if as_json and fix_only:
+        raise UsageError("give --json or --fix, not both (the JSON has the fixes: summary.fix)")
     d = _load(design, overrides)
     with _progress(quiet, as_json):
         rep = check_design(d)
     if as_json:
         click.echo(json.dumps(rep.to_json(), indent=2))
+    elif fix_only:
+        click.echo(check_text.fix_only(rep), nl=False)
+        s = rep.summary()
+        click.echo(f"simkit: {len(rep.fixes)} settings fix {s['fail']} fail and {s['marginal']} marginal verdicts; "
+                   "apply them and check again" if rep.fixes else "simkit: nothing to fix", err=True)
     else:
-        click.echo(report_text(rep), nl=False)
+        click.echo(check_text.report_text(rep, check_text.command_line(design, overrides, rep)), nl=False)
     if rep.failed:
         raise click.exceptions.Exit(1)
 
@@ -440,11 +460,16 @@ def spread(design: str, runs: int, seed: int, out_dir: str | None, check: bool, 
               help='What the figure must meet: "ripple_pp_v<=2", "vout_dc_v>=300" or "vout_dc_v=320".')
 @click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
 @click.option("--json", "as_json", is_flag=True, help="Print exactly one JSON document on stdout.")
-def size(design: str, vary: str, target: str, overrides: tuple[str, ...], as_json: bool) -> None:
+@click.option("--stock", "stock_series", type=click.Choice(["E3", "E6", "E12", "E24"], case_sensitive=False),
+              help="Also give the stock value of this E series (IEC 60063) that meets the target, and its "
+              "neighbour that misses it.")
+def size(design: str, vary: str, target: str, overrides: tuple[str, ...], as_json: bool,
+         stock_series: str | None) -> None:
     """Find the value of one design parameter that meets a target figure."""
     from simkit.sweep.size import run_size, summary_text
 
-    result = run_size(design, vary, target, overrides=overrides)
+    result = run_size(design, vary, target, overrides=overrides,
+                      stock_series=stock_series.upper() if stock_series else None)
     if as_json:
         click.echo(json.dumps(result.to_json(), indent=2))
     else:

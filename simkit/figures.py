@@ -49,6 +49,11 @@ FIGURES: dict[str, Figure] = _table(
     Figure("source_va", "VA", "apparent power drawn from the winding(s)", words="winding apparent power"),
     Figure("settle_time_s", "s", "simulated time until steady state was declared (every span of the search)",
            words="time to steady state"),
+    # The whole transformer (kind = "transformer": the high-voltage winding and its heater windings).
+    Figure("primary_rms_a", "A", "RMS primary current: every winding's current times its turns ratio, summed in "
+           "time (magnetising current not included)", words="primary current, RMS"),
+    Figure("transformer_va", "VA", "every winding's rated voltage times its RMS current, summed (high-voltage "
+           "winding and heater windings)", words="transformer apparent power"),
     # Start-up run (every design; the warm-up figures only when a load has a warmup).
     Figure("rise_time_s", "s", "from switch-on until the output first reaches 90 % of vout_dc_v", _ON,
            words="rise time"),

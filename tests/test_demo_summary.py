@@ -42,13 +42,13 @@ def test_the_demo_ends_with_a_verdict_and_a_report_per_example(tmp_path: Path, c
         assert Path(report) == out / path.stem / "report.html" and Path(report).is_file()
         # The counts are the report's own verdict table.
         lines = (Path(report).parent / "report.md").read_text("utf-8").splitlines()
-        head = lines.index("| part | rule | value | limit | margin | verdict | corner | limit from |")
+        head = lines.index("| part | rule | value | rating | limit | margin | verdict | corner | limit from |")
         rows = []
         for row in lines[head + 2:]:
             if not row.startswith("|"):
                 break
             rows.append(row)
-        verdicts = [row.split("|")[6].strip() for row in rows]
+        verdicts = [row.split("|")[7].strip().split(" (")[0] for row in rows]  # "**FAIL** (above rating)"
         assert rows and len(verdicts) == int(fails) + int(marginals) + int(passes)
         assert verdicts.count("**FAIL**") == int(fails) and verdicts.count("**MARGINAL**") == int(marginals)
         assert verdicts.count("pass") == int(passes)

@@ -332,6 +332,18 @@ MISTAKES: list[Mistake] = [
     m("set-stages-on-bridge", B, "rectifier.stages", 'applies to topology "cascade" only',
       sets=("rectifier.stages=2",)),
     m("set-second-of-two-bad", B, "load.r", "must be positive", sets=("filter.0.c=220u", "load.r=0")),
+    # -- strings of diodes, the example flag -------------------------------------------------------
+    m("series-zero", edit(B, 'diode = "1N4007"', 'diode = "1N4007"\nseries = 0'), "rectifier.series",
+      "must be between 1 and 50"),
+    m("sharing-without-string", edit(B, 'diode = "1N4007"', 'diode = "1N4007"\nsharing = "470k"'),
+      "rectifier.sharing", "set series = 2 or more"),
+    m("sharing-rating-without-sharing", edit(B, 'diode = "1N4007"', 'diode = "1N4007"\nseries = 2\n'
+                                             'sharing_rating = { w = "1" }'), "rectifier.sharing_rating",
+      "needs sharing"),
+    m("series-of-tubes", edit(B, 'diode = "1N4007"', 'diode = "5U4GB"\nseries = 2'), "rectifier.series",
+      "for silicon diodes"),
+    m("example-not-bool", edit(B, 'title = "Test: bridge into CRC"', 'title = "Test: bridge into CRC"\n'
+                               'example = "yes"'), "example", "expected true or false"),
 ]
 
 

@@ -229,10 +229,12 @@ def test_sections_appear_when_their_data_exists(tmp_path: Path) -> None:
     md = doc.markdown()
     for heading in ("## Verdicts", "### Keyed load", "### Start-up timeline"):
         assert f"\n{heading}\n" in md, heading
-    assert "| D1 | piv\\_v | 450 V | 1 kV | +55 % | pass | mains +10% |" in md
-    result.extra["verdicts"][0].update(verdict="fail", basis="VRRM 1000 V (datasheet)")
+    assert "| D1 | piv\\_v | 450 V |   | 1 kV | +55 % | pass | mains +10% |" in md  # no rating given: blank
+    result.extra["verdicts"][0].update(verdict="fail", basis="VRRM 1000 V (datasheet)", rating=1250.0,
+                                       exceeds="derating")
     md = build_report(result).markdown()
-    assert "| +55 % | **FAIL** | mains +10% | \\[1\\] |" in md and "- \\[1\\] VRRM 1000 V (datasheet)" in md
+    assert "| 1.25 kV | 1 kV | +55 % | **FAIL** (above derating) | mains +10% | \\[1\\] |" in md
+    assert "- \\[1\\] VRRM 1000 V (datasheet)" in md
     assert {"keyed.png", "keyed.svg", "start-up.png", "start-up.svg"} <= set(doc.files())
     assert "| BLOAD | " in md  # the keyed load in the parts table
     assert "**Invented example.**" not in md  # only designs that say so are labelled invented

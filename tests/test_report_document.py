@@ -158,10 +158,10 @@ def test_schematic_of_an_example_is_repeatable() -> None:
     assert a.png == b.png and a.svg == b.svg
     assert {"V1", "RW1", "D1", "D2", "D3", "D4", "C1", "L1", "C2", "RLOAD", "RBLEED"} == set(a.drawn)
     # Values as the example file gives them, in engineering notation (ESR and DCR in the labels).
-    assert a.labels["C1"] == "C1\n47 µF\nESR 500 mΩ"
+    assert a.labels["C1"] == "C1\n33 µF\nESR 500 mΩ"
     assert a.labels["L1"] == "L1\n5 H\nDCR 120 Ω"
     assert a.labels["V1"] == "V1\n300 V rms\n50 Hz"
-    assert a.labels["RLOAD"] == "RLOAD\nload\n4 kΩ" and a.labels["RBLEED"] == "RBLEED\nbleeder\n100 kΩ"
+    assert a.labels["RLOAD"] == "RLOAD\nload\n4 kΩ" and a.labels["RBLEED"] == "RBLEED\nbleeder\n33 kΩ"
     assert a.labels["D1"] == "D1\n1N4007"
 
 

@@ -86,8 +86,10 @@ def deck_symbols(circuit: Circuit) -> tuple[Counter[str], set[str]]:
     for e in circuit.elements:
         n = e.name
         if n in BATTERY_MODEL or n.startswith(("VD", "VC", "VLOAD", "VPASS", "VSHUNT", "VWAVE", "VHEAT", "VWARM",
-                                               "VSTEP", "VKEY", "RT", "RESR", "RDCR")):
-            continue  # numerics only: senses, drives, ties, and ESR/DCR shown in their part's label
+                                               "VSTEP", "VKEY", "RT", "RESR", "RDCR", "RSH", "VH", "RWH", "RH")):
+            continue  # numerics only: senses, drives, ties, and ESR/DCR shown in their part's label; likewise
+            # a diode string's sharing resistors (RSH, in its diodes' label) and the heater windings (VH, RWH,
+            # RH: in the transformer winding's label)
         if n in GLOW_MODEL:
             if n == "SGLOW":
                 kinds["glow tube"] += 1
@@ -139,7 +141,12 @@ def check(sch: Schematic, circuit: Circuit) -> None:
     # Each label names its part(s) on its first line and shows the value the deck simulates.
     for part, label in sch.labels.items():
         assert part in label.splitlines()[0].split(", "), (part, label)
-    values = [(r.name, r.value, "Ω") for r in circuit.resistors if r.role not in ("esr", "dcr")]
+    values = [(r.name, r.value, "Ω") for r in circuit.resistors if r.role not in ("esr", "dcr", "sharing")]
+    for r in circuit.resistors:  # a string's sharing resistors: one across each diode, in the string's label
+        if r.role == "sharing":
+            diode = circuit.element("D" + r.name[3:])
+            n = int(re.search(r"a string of (\d+)", diode.comment).group(1))  # type: ignore[union-attr]
+            values.append((diode.name, r.value / n, "Ω"))
     values += [(c.name, c.value, "F") for c in circuit.capacitors if c.name in names]
     values += [(x.name, x.value, "H") for x in circuit.inductors]
     for name, value, unit in values:
@@ -225,7 +232,7 @@ def test_regulators_are_drawn_part_by_part(tmp_path: Path) -> None:
     assert kinds["mosfet"] == 1 and kinds["zener"] == 2  # the reference and the gate-source zener
     for part in ("MPASS", "DREF", "RREF", "RFREF", "RGATE", "DGS"):
         assert part in sch.drawn
-    assert "IRFBG20" in sch.labels["MPASS"] and "560 V" in sch.labels["DREF"]
+    assert "IRF840" in sch.labels["MPASS"] and "560 V" in sch.labels["DREF"]
     ref = next(c for c in build_circuit(design).capacitors if c.role == "reference")
     assert ref.name in sch.drawn  # the reference filter's capacitor
 

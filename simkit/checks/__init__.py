@@ -1,4 +1,4 @@
-"""`simkit check`: every part against its ratings at the corners that bind, plus switch-off safety."""
+"""`simkit check`: every part against its ratings at the corners that bind, plus switch-off safety, with fixes."""
 
 from __future__ import annotations
 
@@ -7,15 +7,22 @@ from dataclasses import dataclass
 from typing import Any
 
 from simkit import __version__
-from simkit.checks.corners import Corners, run_corners
-from simkit.checks.rules import Findings, Verdict, evaluate
+from simkit.checks.corners import Corners, nominal_corners, run_corners
+from simkit.checks.fix import Assignment, Fix, merge, set_line
+from simkit.checks.rules import Findings, NotChecked, Verdict, evaluate, make_verdict
 from simkit.checks.supply import supply_verdicts
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine
+from simkit.pipeline import RunResult
 from simkit.safety import CAUTIONS
+
+__all__ = ["Assignment", "CheckReport", "Fix", "NotChecked", "Verdict", "check_design", "make_verdict",
+           "next_fuse", "nominal_check", "suggest_fuse"]
 
 #: Preferred fuse ratings, A (the R10 series used for miniature fuses, IEC 60127 style; from memory [M]).
 FUSE_SERIES = (1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0)
+#: Added to a transformer's primary current for its magnetising current and losses (common practice).
+MAGNETISING = 0.10
 
 
 def next_fuse(current: float) -> float:
@@ -44,12 +51,44 @@ class CheckReport:
     def failed(self) -> bool:
         return any(v.verdict == "fail" for v in self.verdicts)
 
+    @property
+    def fixes(self) -> list[Assignment]:
+        """Every fail and marginal verdict's fix, merged: one assignment per path (``check --fix``)."""
+        return merge(v.fix for v in self.verdicts if v.verdict != "pass")
+
+    @property
+    def fix_line(self) -> str:
+        """The merged fixes as ``--set A=1 --set B=2`` (empty when nothing needs fixing)."""
+        return set_line(self.fixes)
+
+    def worst(self, count: int = 3) -> list[Verdict]:
+        """The worst verdict of each failing rule, worst first: fails above a part's absolute rating, then the
+        others, each by how far beyond its limit (then the marginal ones); ``count`` of them."""
+        def key(v: Verdict) -> tuple[int, float]:
+            times = v.times_limit
+            beyond = (v.limit / v.value if v.value else math.inf) if v.minimum else (times or 0.0)
+            rank = 0 if v.exceeds == "rating" else 1 if v.verdict == "fail" else 2
+            return rank, -beyond
+
+        seen: set[str] = set()
+        out = []
+        for v in sorted((v for v in self.verdicts if v.verdict != "pass"), key=key):
+            if v.rule not in seen:
+                seen.add(v.rule)
+                out.append(v)
+        return out[:count]
+
     def summary(self) -> dict[str, Any]:
         counts = {k: sum(1 for v in self.verdicts if v.verdict == k) for k in ("pass", "marginal", "fail")}
+        exceeds = {k: sum(1 for v in self.verdicts if v.exceeds == k) for k in ("rating", "derating", "limit")}
+        corners = list(dict.fromkeys([*self.corners.results, self.corners.names["on"], self.corners.names["off"]]))
         return {**counts, "result": "fail" if counts["fail"] else ("marginal" if counts["marginal"] else "pass"),
-                "not_checked": list(self.findings.not_checked), "fuse": self.fuse,
-                "corners": [*self.corners.results, self.corners.names["off"]],
-                "cautions": CAUTIONS}
+                "fails_above_rating": exceeds["rating"], "fails_above_derating": exceeds["derating"],
+                "fails_above_limit": exceeds["limit"],
+                "not_checked": [str(x) for x in self.findings.not_checked],
+                "not_checked_rules": [x.to_json() if isinstance(x, NotChecked) else {"why": str(x)}
+                                      for x in self.findings.not_checked],
+                "fix": [a.text() for a in self.fixes], "fuse": self.fuse, "corners": corners, "cautions": CAUTIONS}
 
     def to_json(self) -> dict[str, Any]:
         return {"simkit": __version__, "design": self.design.title,
@@ -57,29 +96,55 @@ class CheckReport:
 
 
 def suggest_fuse(design: Design, corners: Corners) -> dict[str, Any]:
-    """A slow-blow fuse from the highest RMS current of the heavy corners (1.5 x, common practice)."""
-    cn = corners.names
-    heavy = corners.results[cn["heavy"]]
+    """A slow-blow fuse: 1.5 x the current it carries at the heavy corner (common practice), named as used.
+
+    A transformer's fuse is in its primary, sized on the primary's RMS current with every winding
+    reflected (``primary_rms_a``) plus 10 % for magnetising current and losses; an inverter's in
+    the battery lead, on the battery's RMS current; otherwise in series with the winding, on its
+    RMS current.
+    """
+    corner = corners.names["heavy"]
+    heavy = corners.results[corner]
     src = design.source
-    if src.inverter is not None and "battery_peak_current_a" in heavy.metrics:
+    if src.inverter is not None and design.battery is not None and heavy.circuit.battery_nodes:
         # The battery's low corner draws the most current for the same power.
-        i = max(r.metrics.get("battery_peak_current_a", 0.0) for r in corners.results.values())
-        where = "in the battery lead, at the battery"
-    elif src.transformer is not None:
-        # Primary current from the secondary VA plus about 10 % for magnetising current and losses (common practice).
-        i = heavy.metrics["source_va"] * 1.1 / src.transformer.primary_vrms
+        i, corner = max((_battery_rms(r), name) for name, r in corners.results.items() if r.circuit.battery_nodes)
+        what, where = "the battery's RMS current", "in the battery lead, at the battery"
+    elif src.transformer is not None and "primary_rms_a" in heavy.metrics:
+        i = heavy.metrics["primary_rms_a"] * (1 + MAGNETISING)
+        what = ("the primary's RMS current (every winding reflected, plus 10 % for magnetising current and "
+                "losses)")
         where = "in the transformer primary (mains side)"
     else:
         i = heavy.metrics["source_rms_a"]
-        where = "in series with the winding that feeds the rectifier"
+        what, where = "the winding's RMS current", "in series with the winding that feeds the rectifier"
     rating = next_fuse(1.5 * i)
-    return {"rating_a": rating, "type": "slow-blow (time-lag)", "where": where, "rms_current_a": i,
-            "why": "1.5 x the highest RMS current, slow-blow because the switch-on surge would blow a fast fuse "
-                   "(common practice)"}
+    return {"rating_a": rating, "type": "slow-blow (time-lag)", "where": where, "current_a": i, "current": what,
+            "corner": corner,
+            "why": f"1.5 x {what}, slow-blow because the switch-on surge would blow a fast fuse (common practice)"}
 
 
-def check_design(design: Design, engine: Engine | None = None) -> CheckReport:
+def _battery_rms(result: RunResult) -> float:
+    """The battery's RMS current over the measuring window, A (its node ``ib`` carries it as volts)."""
+    from simkit.analysis import metrics as mx
+
+    w = result.steady.final.waves
+    t0, t1 = result.window
+    return mx.rms(w.time, w.v("ib"), t0, t1)
+
+
+def check_design(design: Design, engine: Engine | None = None, fixes: bool = True) -> CheckReport:
+    """Simulate the corners, judge every rule, and (``fixes``) give each fail and marginal verdict its fix."""
     corners = run_corners(design, engine)
     findings = evaluate(design, corners)
     supply_verdicts(design, corners, findings)
+    if fixes:
+        from simkit.checks.fixes import propose
+
+        propose(design, corners, findings, engine)
     return CheckReport(design, corners, findings, suggest_fuse(design, corners))
+
+
+def nominal_check(result: RunResult) -> Findings:
+    """The rules against one run at nominal conditions (no corners, no switch-off run, no fixes)."""
+    return evaluate(result.design, nominal_corners(result))

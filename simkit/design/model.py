@@ -84,6 +84,14 @@ class Rectifier:
                                               'resistor, { w = "1" }', None, reader=rating_reader("r"),
                                               of=(PartRating,))
     snubber: Snubber | None = snubber_key("each rectifier diode")
+    series: int = key("series", "int", "silicon diodes in series in each position (a string for high voltage); "
+                      "reverse voltages and their checks are per diode", 1, shown="1", minimum=1, maximum=50,
+                      label="diodes in series")
+    sharing: float | None = key("sharing", "ohm", "a voltage-sharing resistor across each diode of a string "
+                                "(series of 2 or more)", None, shown="none", above=0, maximum=1e12,
+                                label="sharing resistance")
+    sharing_rating: PartRating | None = key("sharing_rating", "table", 'power rating of each sharing resistor, '
+                                            '{ w = "0.5" }', None, reader=rating_reader("r"), of=(PartRating,))
 
     @classmethod
     def refuse(cls, rd: Reader, t: Mapping[str, Any], path: str) -> None:
@@ -100,6 +108,21 @@ class Rectifier:
                           "balancing_rating"), path, "belongs to the stage capacitors of a doubler or cascade")
         if "balancing_rating" in t and "balancing" not in t:
             raise rd.fail(f"{path}.balancing_rating", "needs balancing (the resistance across each stage capacitor)")
+        _refuse_string(rd, t, path)
+
+    def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
+        if self.series > 1 and self.diode.is_vacuum:
+            raise rd.fail(f"{path}.series", "strings of diodes are for silicon diodes; a vacuum rectifier is one "
+                          "tube per position")
+        if self.sharing is not None and self.series < 2:
+            raise rd.fail(f"{path}.sharing", "a sharing resistor shares the voltage of a string: set series = 2 or "
+                          "more")
+
+
+def _refuse_string(rd: Reader, t: Mapping[str, Any], path: str) -> None:
+    """Sharing resistors' rating belongs to sharing resistors."""
+    if "sharing_rating" in t and "sharing" not in t:
+        raise rd.fail(f"{path}.sharing_rating", "needs sharing (the resistance across each diode of the string)")
 
     def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
         if self.snubber is not None and self.diode.is_vacuum:
@@ -359,6 +382,8 @@ class Design:
     checks: CheckPolicy = key("checks", "table", "derating policy and safety limits of `simkit check`",
                               CheckPolicy(), of=(CheckPolicy,))
     note: str = key("note", "str", "free text for reports (never written into a deck)", "", shown='""')
+    example: bool = key("example", "bool", "the design is an invented example, not a real build: reports say so in "
+                        "a banner", False, shown="false")
     library: str = key("library", "str", "a parts file of your own (TOML, path relative to the design file): diodes "
                        'by name, and ratings for capacitors, chokes and resistors used with part = "NAME"', "")
     origin: str = field(default="<design>", compare=False)  # file the design came from, for messages

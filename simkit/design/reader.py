@@ -262,6 +262,7 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
     if len(title) > MAX_TITLE:
         raise rd.fail("title", f"is {len(title)} characters long; keep it under {MAX_TITLE}")
     note = rd.text(data, "note", "", "")
+    example = rd.boolean(data, "example", "", False)
     library = rd.text(data, "library", "", "")
     if "library" in data:
         _load_library(rd, library)
@@ -295,7 +296,7 @@ def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Desig
                       "with nothing after it; add a [load], a [bleeder] or a final c section")
     return Design(title=title, source=source, rectifier=rectifier, filters=filters, loads=loads, bleeder=bleeder,
                   battery=battery, simulation=sim, spread=spread, checks=checks, regulator=regulator, note=note,
-                  library=library, origin=origin)
+                  example=example, library=library, origin=origin)
 
 
 def design_to_inputs(design: Design) -> dict[str, Any]:

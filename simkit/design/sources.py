@@ -19,7 +19,7 @@ from typing import Any, ClassVar
 import numpy as np
 
 from simkit.design.snubber import Snubber, snubber_key
-from simkit.design.vocab import Reader, key, show
+from simkit.design.vocab import Reader, key, read_section, show
 from simkit.units import UnitError, parse_percent, parse_value
 
 #: Source EMFs below this are refused, V RMS: below a volt a rectifier diode hardly conducts.
@@ -81,6 +81,47 @@ class SineSource(_Periodic):
 
 
 @dataclass(frozen=True)
+class HeaterWinding:
+    """One heater or filament winding of a mains transformer: ``{ vrms = "6.3", i = "3" }``."""
+
+    vrms: float = key("vrms", "V", "the heaters' voltage (the winding's nameplate voltage at this load)",
+                      required=True, need='the heater voltage, e.g. vrms = "6.3"', above=0, minimum=MIN_EMF,
+                      maximum=1e3, label="heater voltage")
+    i: float = key("i", "A", "the current the heaters draw", required=True, need='the heater current, e.g. i = "3"',
+                   above=0, maximum=1e3, label="heater current")
+    rated_current: float | None = key("rated_current", "A", "the winding's RMS current rating, for `simkit check`",
+                                      None, shown="none", above=0, maximum=1e3)
+
+
+def read_heaters(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> tuple[HeaterWinding, ...]:
+    """``heaters = [{ vrms = "6.3", i = "3" }, ...]``."""
+    if isinstance(raw, dict):
+        raw = [raw]
+    if not isinstance(raw, list):
+        raise rd.fail(path, f'expected a list of windings such as [{{ vrms = "6.3", i = "3" }}], got {show(raw)}')
+    if len(raw) > 20:
+        raise rd.fail(path, f"at most 20 heater windings, got {len(raw)}")
+    out = []
+    for k, t in enumerate(raw):
+        if not isinstance(t, dict):
+            raise rd.fail(f"{path}.{k}", f'expected a table {{ vrms = "6.3", i = "3" }}, got {show(t)}')
+        out.append(read_section(rd, HeaterWinding, t, f"{path}.{k}"))
+    return tuple(out)
+
+
+def read_va(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> float:
+    """A VA rating: a number, or text with an SI prefix and an optional ``VA`` (``"150"``, ``"1.2kVA"``)."""
+    text = raw.strip().removesuffix("VA").strip() if isinstance(raw, str) else raw
+    try:
+        v = parse_value(text, "")
+    except UnitError as exc:
+        raise rd.fail(path, f"{exc} (volt-amperes, e.g. \"150\" or \"1.2kVA\")") from None
+    if not 0 < v <= 1e7:
+        raise rd.fail(path, f"must be positive and at most 1e+07 VA, got {v:g}")
+    return v
+
+
+@dataclass(frozen=True)
 class TransformerSource(_Periodic):
     """``kind = "transformer"``: a mains transformer described by its nameplate.
 
@@ -115,6 +156,11 @@ class TransformerSource(_Periodic):
                            False, shown="false")
     mains_tolerance: float | None = _tolerance()
     snubber: Snubber | None = snubber_key("the secondary (each half for centre-tap)")
+    heaters: tuple[HeaterWinding, ...] = key("heaters", "list", "heater and filament windings on the same core, "
+                                             '[{ vrms = "6.3", i = "3" }, ...]: their current adds to the primary\'s',
+                                             (), reader=read_heaters, of=(HeaterWinding,))
+    va_rating: float | None = key("rated_va", "VA", "the transformer's VA rating, every winding together, for "
+                                  "`simkit check`", None, shown="none", reader=read_va)
     topology: str = "bridge"  # the rectifier it feeds (a centre tap splits the winding): set by the reader
 
     inverter: ClassVar[None] = None
@@ -172,8 +218,22 @@ class TransformerSource(_Periodic):
         return (self.secondary_resistance or 0.0) + n * n * (self.primary_resistance or 0.0)
 
     @property
-    def rated_va(self) -> float:
+    def secondary_va(self) -> float:
+        """The high-voltage winding's nameplate VA (rated voltage x rated current), VA."""
         return self.secondary_vrms * self.rated_current
+
+    @property
+    def regulation_share(self) -> float:
+        """No-load rise over full-load voltage of the high-voltage winding; heater windings share it."""
+        return self.open_circuit_vrms / self.secondary_vrms - 1.0
+
+    def heater_emf(self, h: HeaterWinding) -> float:
+        """A heater winding's open-circuit EMF, V RMS: its voltage at its load raised by the shared regulation."""
+        return h.vrms * (1.0 + self.regulation_share)
+
+    def heater_resistance(self, h: HeaterWinding) -> float:
+        """A heater winding's series resistance (its copper and the primary's, referred), ohm."""
+        return (self.heater_emf(h) - h.vrms) / h.i
 
     def _per_winding(self) -> tuple[float, float, float]:
         voc, rser, leak = self.open_circuit_vrms, self.series_resistance, self.leakage_inductance

@@ -98,6 +98,20 @@ def diode_model_line(d: DiodeModel, dynamics: bool = False) -> str:
     return f".model {DIODE_MODEL} D({' '.join(params)})"
 
 
+def string_model(d: DiodeModel, n: int) -> DiodeModel:
+    """One SPICE diode for ``n`` identical diodes in series (exact when they share equally, derived here).
+
+    The same current flows through each: the string drops n times one diode's voltage, so N and
+    RS scale by n and IS stays; each diode stores the same charge (TT stays); the junction
+    capacitances are in series (CJO / n; their voltage dependence is taken as one diode's, an
+    approximation); the string breaks down at n x BV.
+    """
+    if n == 1:
+        return d
+    cjo = {"cjo": d.cjo / n} if d.cjo else {}
+    return replace(d, n=d.n * n, rs=d.rs * n, bv=None if d.bv is None else d.bv * n, **cjo)
+
+
 class _Builder:
     def __init__(self, design: Design, phase_deg: float, vscale: float = 1.0, mode: str = "steady") -> None:
         if mode not in MODES:
@@ -276,7 +290,10 @@ class _Builder:
         self.c.add(Element(f"VD{k}", (anode, inner), "0", comment=f"senses D{k} current"))
         vac = self.d.rectifier.diode.vacuum
         if vac is None:
-            self.c.add(Element(f"D{k}", (inner, cathode), DIODE_MODEL, comment="anode cathode ->|-"))
+            n = self.d.rectifier.series
+            self.c.add(Element(f"D{k}", (inner, cathode), DIODE_MODEL, comment="anode cathode ->|-"
+                               + (f", a string of {n} in series" if n > 1 else "")))
+            self.sharing(k, anode, cathode)
         else:
             # A vacuum plate: Child-Langmuir current, none in reverse (docs/engine-notes.md#tube-law: max(v,0),
             # never a smoothed exponential).  Emission follows the heater in the start-up run.
@@ -291,6 +308,37 @@ class _Builder:
         self.c.diodes.append(DiodeRef(f"D{k}", f"VD{k}", anode, cathode))
         if self.d.rectifier.snubber is not None:
             self.own_snubber(anode, cathode, self.d.rectifier.snubber, f"{DIODE_SNUBBER}{k}", f"D{k}")
+
+    def sharing(self, k: int, anode: str, cathode: str) -> None:
+        """The sharing resistors of string ``k``: one per diode, drawn as one element of their sum (identical
+        diodes with equal resistors share equally, so each diode's resistor sees the string's voltage / n)."""
+        r = self.d.rectifier
+        if r.sharing is None or r.series < 2:
+            return
+        total = r.sharing * r.series
+        self.c.add(Element(f"RSH{k}", (anode, cathode), spice(total),
+                           comment=f"sharing resistors of D{k}: {r.series} x {spice(r.sharing)}"))
+        self.c.resistors.append(ResRef(f"RSH{k}", anode, cathode, total, "sharing"))
+
+    def heaters(self) -> None:
+        """Heater and filament windings of a transformer: each its EMF, its resistance and the heaters.
+
+        They share the core, so their EMFs are in phase with winding 1; their currents reach the
+        primary (``primary_rms_a``), not the rectifier.  Each delivers its ``vrms`` at its current
+        at nominal mains (the transformer's regulation shared by every winding).
+        """
+        s = self.d.source
+        tr = s.transformer
+        if tr is None or not tr.heaters:
+            return
+        for k, h in enumerate(tr.heaters, start=1):
+            emf = tr.heater_emf(h) * self.vscale
+            self.c.add(Element(f"VH{k}", (f"h{k}e", "0"), f"SIN(0 {spice(math.sqrt(2.0) * emf)} {spice(s.frequency)} 0 "
+                               f"0 {spice(self.phase)})", comment=f"heater winding {k} EMF, {spice(emf)} Vrms"))
+            self.c.add(Element(f"RWH{k}", (f"h{k}e", f"h{k}"), spice(tr.heater_resistance(h)),
+                               comment=f"heater winding {k} resistance"))
+            self.c.add(Element(f"RH{k}", (f"h{k}", "0"), spice(h.vrms / h.i),
+                               comment=f"heaters on winding {k}: {spice(h.vrms)} V {spice(h.i)} A"))
 
     def capacitor(self, plus: str, minus: str, value: float, esr: float, role: str) -> str:
         self.n_cap += 1
@@ -553,6 +601,7 @@ def build_circuit(design: Design, phase_deg: float = 0.0, vscale: float = 1.0, m
     if design.battery is not None and design.source.inverter is not None and not design.source.inverter.regulated:
         b.c.battery_nodes["vt"] = "vt"  # tells the inverter EMF to follow the battery (built below)
     b.rectifier()
+    b.heaters()
     last = b.filters()
     circuit = b.c
     supply = "raw" if design.regulator is not None else "out"
@@ -562,7 +611,11 @@ def build_circuit(design: Design, phase_deg: float = 0.0, vscale: float = 1.0, m
     b.loads()
     b.battery()
     if not design.rectifier.diode.is_vacuum:
-        circuit.models.append(diode_model_line(design.rectifier.diode, dynamics))
+        dm = design.rectifier.diode
+        if dynamics:  # the part's real recovery and capacitance, for one diode; the string divides them
+            tt, cjo = diode_dynamics(dm)
+            dm = replace(dm, tt=tt, cjo=cjo)
+        circuit.models.append(diode_model_line(string_model(dm, design.rectifier.series)))
     circuit.output = "out"
     circuit.rectified = supply if last == "rect" else "rect"
     return circuit

@@ -55,11 +55,12 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
     refined = start.refined
     vac = design.rectifier.diode.vacuum
     diode_parts: list[DiodeResult] = []
+    per = 1.0 / design.rectifier.series  # a string of identical diodes shares its reverse voltage equally
     for d in circuit.diodes:
         i = w.i(d.sense)
-        vrev = w.v(d.cathode) - w.v(d.anode)
+        vrev = (w.v(d.cathode) - w.v(d.anode)) * per
         i_on = sw.i(d.sense)
-        vrev_on = sw.v(d.cathode) - sw.v(d.anode)
+        vrev_on = (sw.v(d.cathode) - sw.v(d.anode)) * per
         # The fine first periods, and the coarse period with the highest current simulated again finely
         # (switch_on only skips that when the coarse part stayed well below the first periods).
         fine_end = np.searchsorted(ts, start.deck_span or s1, side="right")
@@ -125,7 +126,8 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
         v = w.v(r.a) - w.v(r.b)
         parts[r.name] = ResistorResult(
             role={"filter": "filter resistor", "bleeder": "bleeder", "winding": "winding resistance",
-                  "balancing": "balancing resistor", "regulator": "regulator resistor"}[r.role],
+                  "balancing": "balancing resistor", "regulator": "regulator resistor",
+                  "sharing": "sharing resistors of a diode string"}[r.role],
             value_ohm=r.value, dissipation_w=mx.mean(t, v * v, t0, t1) / r.value, dc_a=mx.mean(t, v, t0, t1) / r.value,
             rms_a=mx.rms(t, v, t0, t1) / r.value, peak_v=mx.peak(t, np.abs(v), t0, t1))
     for lref in circuit.loads:
@@ -151,6 +153,8 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
             surge_peak_a=float(np.max(np.abs(sw.i(wd.name)))))
     m["source_rms_a"] = max(src_rms)
     m["source_va"] = va
+    if design.source.transformer is not None:
+        _transformer_figures(design, circuit, w, sw, (t0, t1), m, parts)
     m["settle_time_s"] = steady.settle_time
 
     _start_figures(design, circuit, sc, start, m, warnings)
@@ -176,6 +180,45 @@ def figures(design: Design, circuit: Circuit, steady: SteadyState, start: Run, s
     attach_snubbers(result)
     attach_hum(result)
     return result
+
+
+def _transformer_figures(design: Design, circuit: Circuit, w: Waveforms, sw: Waveforms,
+                         window: tuple[float, float], m: dict[str, float], parts: dict[str, PartResult]) -> None:
+    """Heater windings, the primary current and the transformer's VA (docs/reference.md, "The whole transformer").
+
+    An ideal transformer's primary carries every winding's current times that winding's turns
+    ratio (its EMF over the primary voltage), so the primary current is that sum taken instant by
+    instant: the rectifier's peaky current and the heaters' sine add as waveforms, not as RMS
+    values.  The magnetising current is left out (no nameplate gives it).
+    """
+    tr = design.source.transformer
+    assert tr is not None
+    t0, t1 = window
+    t = w.time
+    first = circuit.windings[0]
+    emf1 = w.v(first.emf) - w.v(first.minus)
+    vscale = first.vrms / design.source.vrms  # the corner's mains scale
+    vp = tr.primary_vrms * vscale
+    ip = np.zeros_like(t)
+    rated = tr.secondary_vrms / len(circuit.windings)  # each half of a centre tap: half the winding
+    va = 0.0
+    for wd in circuit.windings:
+        i = -w.i(wd.name)
+        emf = w.v(wd.emf) - w.v(wd.minus)
+        sign = 1.0 if float(np.mean(emf * emf1)) >= 0 else -1.0  # the second half of a centre tap is antiphase
+        ip = ip + sign * wd.vrms / vp * i
+        va += rated * mx.rms(t, i, t0, t1)
+    for k, h in enumerate(tr.heaters, start=1):
+        name = f"VH{k}"
+        i = -w.i(name)
+        emf = tr.heater_emf(h) * vscale
+        ip = ip + emf / vp * i
+        irms = mx.rms(t, i, t0, t1)
+        va += h.vrms * irms
+        parts[name] = WindingResult(role="heater winding", vrms_v=emf, rms_a=irms, peak_a=mx.peak(t, np.abs(i), t0, t1),
+                                    apparent_power_va=h.vrms * irms, surge_peak_a=float(np.max(np.abs(sw.i(name)))))
+    m["primary_rms_a"] = mx.rms(t, ip, t0, t1)
+    m["transformer_va"] = va
 
 
 def _surge_i2t(t: np.ndarray, i: np.ndarray, period: float, s0: float, s1: float) -> float:

@@ -1,15 +1,24 @@
-"""The text ``simkit check`` prints: one line per verdict, the summary, the fuse and the cautions."""
+"""The text ``simkit check`` prints: one line per verdict (rating beside the derated limit), the rules not
+checked, the fixes and their ``--set`` line, the summary, the fuse and the cautions; and ``simkit run``'s
+closing line, the ratings exceeded at nominal conditions."""
 
 from __future__ import annotations
 
 import math
+import shlex
+from typing import Any
 
-from simkit.checks import CheckReport
+from simkit.checks import CheckReport, NotChecked, Verdict
 from simkit.safety import CAUTIONS
 from simkit.units import eng
 
+#: A failing value at least this many times its limit shows its ratio ("x3.2") instead of a margin.
+RATIO_FROM = 2.0
 
-def _show(v: float, unit: str) -> str:
+
+def _show(v: float | None, unit: str) -> str:
+    if v is None:
+        return "–"
     if unit == "missing":
         return f"{v:g} missing"
     if not math.isfinite(v):
@@ -19,29 +28,140 @@ def _show(v: float, unit: str) -> str:
     return eng(v, {"ohm": "Ω", "VA": "VA"}.get(unit, unit))
 
 
-def report_text(rep: CheckReport) -> str:
-    rows = [("part", "rule", "value", "limit", "margin", "verdict", "corner")]
-    for v in rep.verdicts:
-        margin = "" if v.margin is None or not math.isfinite(v.margin) else f"{v.margin * 100:+.0f} %"
-        limit = "none" if v.unit == "missing" else _show(v.limit, v.unit)
-        rows.append((v.part, v.rule, _show(v.value, v.unit), limit, margin, v.verdict.upper()
-                     if v.verdict != "pass" else "pass", v.corner))
+def margin_text(v: Verdict) -> str:
+    """The margin as a builder reads it: ``+36 %``, ``-40 %``, or ``x3.2`` for a value several times its limit."""
+    if v.unit == "missing" or v.margin is None:
+        return ""
+    if not math.isfinite(v.value):
+        return "never" if v.unit == "s" else ""
+    times = v.times_limit
+    if not v.minimum and v.verdict == "fail" and times is not None and times >= RATIO_FROM:
+        return f"x{times:.2g}" if times < 10 else f"x{times:.0f}"
+    if not math.isfinite(v.margin):
+        return ""
+    return f"{v.margin * 100:+.0f} %"
+
+
+def verdict_text(v: Verdict) -> str:
+    """``pass``, ``MARGINAL``, ``FAIL`` with what it is above: the rating, only the derating, or a limit."""
+    if v.verdict == "pass":
+        return "pass"
+    if v.verdict != "fail":
+        return v.verdict.upper()
+    return {"rating": "FAIL: above rating", "derating": "FAIL: above derating", "limit": "FAIL: beyond limit"}.get(
+        v.exceeds, "FAIL")
+
+
+def _rating(v: Verdict) -> str:
+    if v.unit == "missing":
+        return ""
+    if v.rating is None:
+        return "" if v.limit_kind == "policy" else _show(v.limit, v.unit)
+    return _show(v.rating, v.unit)
+
+
+def _limit(v: Verdict) -> str:
+    return "none" if v.unit == "missing" else _show(v.limit, v.unit)
+
+
+def _table(rows: list[tuple[str, ...]]) -> list[str]:
     widths = [max(len(r[k]) for r in rows) for k in range(len(rows[0]))]
-    lines = [f"{rep.design.title}", f"  design file: {rep.design.origin}", ""]
+    out = []
     for k, r in enumerate(rows):
-        lines.append("  " + "  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip())
+        out.append("  " + "  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip())
         if k == 0:
-            lines.append("  " + "  ".join("-" * w for w in widths))
+            out.append("  " + "  ".join("-" * w for w in widths))
+    return out
+
+
+def report_text(rep: CheckReport, command: str = "") -> str:
+    """The whole ``simkit check`` text.  ``command`` is how the design was checked, for the re-check line."""
+    rows: list[tuple[str, ...]] = [("part", "rule", "value", "rating", "limit", "margin", "verdict", "corner")]
+    for v in rep.verdicts:
+        rows.append((v.part, v.rule, _show(v.value, v.unit), _rating(v), _limit(v), margin_text(v), verdict_text(v),
+                     v.corner))
+    for x in rep.findings.not_checked:
+        if isinstance(x, NotChecked):
+            rows.append((x.part, x.rule, _show(x.value, x.unit) if x.value is not None else "", "none", "",
+                         "", "not checked", x.corner))
+    lines = [f"{rep.design.title}", f"  design file: {rep.design.origin}", "", *_table(rows)]
     s = rep.summary()
     lines.append("")
-    lines.append(f"  {s['pass']} pass, {s['marginal']} marginal, {s['fail']} fail: {s['result'].upper()}")
-    if s["not_checked"]:
-        lines.append("  not checked (no rating given):")
-        lines += [f"    - {x}" for x in s["not_checked"]]
+    lines.append(f"  {s['pass']} pass, {s['marginal']} marginal, {s['fail']} fail: {s['result'].upper()}"
+                 + _fail_split(s))
+    loose = [x for x in rep.findings.not_checked if not isinstance(x, NotChecked)]
+    if rep.findings.not_checked:
+        n = len(rep.findings.not_checked)
+        lines.append(f"  {n} rule{'s' if n != 1 else ''} not checked, for want of a rating (rows 'not checked'; "
+                     "add the rating to check them)")
+    lines += [f"    - {x}" for x in loose]
+    lines += fix_lines(rep, command)
     fz = rep.fuse
-    lines.append(f"  suggested fuse: {eng(fz['rating_a'], 'A')} {fz['type']}, {fz['where']} "
-                 f"({fz['why']}; highest RMS current {eng(fz['rms_current_a'], 'A')})")
-    lines.append("  the limits' sources are in --json (basis); derating per [checks] in the design file")
+    lines.append(f"  suggested fuse: {eng(fz['rating_a'], 'A')} {fz['type']}, {fz['where']}: 1.5 x "
+                 f"{fz['current']} at {fz['corner']}, {eng(fz['current_a'], 'A')} (common practice; slow-blow "
+                 "because the switch-on surge would blow a fast fuse)")
+    lines.append("  rating: the part's own; limit: the rating after derating per [checks] (80 % of a diode's "
+                 "VRRM, 90 % of a capacitor's voltage, 50 % of a resistor's power); each limit's source is in "
+                 "--json (basis)")
     lines.append("")
     lines.append(CAUTIONS)
     return "\n".join(lines) + "\n"
+
+
+def _fail_split(s: dict[str, Any]) -> str:
+    if not s["fail"]:
+        return ""
+    parts = [f"{s['fails_above_rating']} above the part's absolute rating"] if s["fails_above_rating"] else []
+    if s["fails_above_derating"]:
+        parts.append(f"{s['fails_above_derating']} above the derating only")
+    if s["fails_above_limit"]:
+        parts.append(f"{s['fails_above_limit']} beyond a safety or design limit")
+    return " (" + ", ".join(parts) + ")"
+
+
+def fix_lines(rep: CheckReport, command: str = "") -> list[str]:
+    """What to change: each distinct fix once, with the verdicts it fixes, then every fix as one --set line."""
+    bad = [v for v in rep.verdicts if v.verdict != "pass" and v.fix is not None]
+    if not bad:
+        return []
+    groups: dict[tuple[tuple[str, ...], str], list[str]] = {}
+    for v in bad:
+        assert v.fix is not None
+        key = (tuple(a.text() for a in v.fix.sets), v.fix.reason)
+        groups.setdefault(key, []).append(f"{v.part} {v.rule}")
+    out = ["", "  to fix (stock values; apply them all, then check again):"]
+    for (sets, reason), which in groups.items():
+        out.append(f"    {', '.join(which)}")
+        out.append(f"      {reason}" + (f": {' '.join(sets)}" if sets else " (no design key to set)"))
+    line = rep.fix_line
+    if line:
+        out.append(f"  all fixes at once: {command or 'simkit check DESIGN'} {line}")
+    out.append("")
+    return out
+
+
+def fix_only(rep: CheckReport) -> str:
+    """``simkit check --fix``: the ``--set`` line of every fix, ready to paste (empty when nothing fails)."""
+    line = rep.fix_line
+    return line + "\n" if line else ""
+
+
+def nominal_line(findings: Any) -> str:
+    """``simkit run``'s last line: how many ratings the run exceeds at nominal conditions, and what to run next."""
+    fails = [v for v in findings.verdicts if v.verdict == "fail"]
+    above = sum(1 for v in fails if v.exceeds == "rating")
+    if not fails:
+        head = "no rating exceeded at nominal conditions"
+    else:
+        split = f", {above} of them above the part's absolute rating" if above else ""
+        names = ", ".join(dict.fromkeys(f"{v.part} {v.rule}" for v in fails[:3])) + (", ..." if len(fails) > 3 else "")
+        head = f"{len(fails)} rating{'s' if len(fails) != 1 else ''} exceeded at nominal conditions{split} ({names})"
+    return f"check: {head}; run `simkit check` for the corners (high and low mains, switch-on, switch-off)\n"
+
+
+def command_line(design: str, overrides: tuple[str, ...] | list[str], rep: CheckReport | None = None) -> str:
+    """``simkit check DESIGN --set ...`` as the user ran it, quoted for a POSIX shell; with ``rep``, without the
+    overrides its fixes replace (the fixes' own --set line follows it)."""
+    fixed = {a.path for a in rep.fixes} if rep is not None else set()
+    kept = [o for o in overrides if o.partition("=")[0].strip() not in fixed]
+    return " ".join(["simkit check", shlex.quote(design), *[f"--set {shlex.quote(o)}" for o in kept]])

@@ -75,7 +75,8 @@ PART_HEADERS: dict[str, str] = {
 
 #: Groups of the parts table: heading, and the roles that belong to it.
 PART_GROUPS: tuple[tuple[str, tuple[str, ...]], ...] = (
-    ("Winding", ("winding", "inverter output", "*output", "winding resistance", "winding leakage inductance")),
+    ("Winding", ("winding", "inverter output", "*output", "winding resistance", "winding leakage inductance",
+                 "transformer winding", "heater winding")),
     ("Rectifier diodes", ("rectifier diode",)),
     ("Capacitors", ("stage capacitor", "reservoir capacitor", "filter capacitor")),
     ("Chokes and resistors", ("choke", "filter resistor")),
@@ -84,9 +85,8 @@ PART_GROUPS: tuple[tuple[str, tuple[str, ...]], ...] = (
 
 
 def is_invented(result: RunResult) -> bool:
-    """True when the design says it is an invented example (title or note)."""
-    d = result.design
-    return "invented" in d.title.lower() or "invented" in d.note.lower()
+    """True when the design file says it is an invented example (``example = true``), never from its words."""
+    return bool(getattr(result.design, "example", False))
 
 
 def report_files() -> list[str]:
@@ -131,6 +131,9 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
                  "plausible, not taken from a real build or measured.")
 
     doc.heading("Summary")
+    verdict_first = _verdict_summary(checks, check_error)
+    if verdict_first:
+        doc.paragraph(verdict_first)
     doc.paragraph(_summary(result))
     if d.note:
         doc.paragraph(f"Note from the design file: {d.note}", markup=False)
@@ -174,10 +177,13 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
         doc.paragraph("Each stress or safety rule checked against the part's rating at the corner where it binds "
                       "(as `simkit check` does): `pass`, `marginal` or `fail`; the margin is the headroom as a "
                       "share of the limit.")
+        doc.paragraph("The rating is the part's own; the limit is that rating after the derating of `[checks]`. A "
+                      "failure says whether the value is above the rating itself or only above the derating; a "
+                      "value several times its limit shows the ratio (x3.2) instead of a margin.")
         bases: list[str] = []
         rows = [_verdict_row(v, bases) for v in verdicts]
-        doc.table(["part", "rule", "value", "limit", "margin", "verdict", "corner", "limit from"], rows,
-                  align="llrrrclc", markup=True)
+        doc.table(["part", "rule", "value", "rating", "limit", "margin", "verdict", "corner", "limit from"], rows,
+                  align="llrrrrclc", markup=True)
         if bases:
             doc.paragraph("Where each limit comes from:")
             doc.bullets([f"[{k + 1}] {b}" for k, b in enumerate(bases)], markup=False)
@@ -463,14 +469,25 @@ def _verdict_row(v: dict[str, Any], bases: list[str]) -> list[str]:
     limit = "none given" if unit == "missing" else _value(v.get("limit"), unit, rule)
     verdict = str(v.get("verdict", ""))
     shown = verdict if verdict == "pass" else f"**{verdict.upper()}**"
+    over = {"rating": "above rating", "derating": "above derating", "limit": "beyond limit"}.get(
+        str(v.get("exceeds") or ""))
+    if over:
+        shown += f" ({over})"
+    times = v.get("times_limit")
+    if verdict == "fail" and isinstance(times, (int, float)) and times >= 2 and unit != "missing":
+        m = f"x{times:.2g}" if times < 10 else f"x{times:.0f}"
+    rating = v.get("rating")
+    if not isinstance(rating, (int, float)) and v.get("limit_kind") == "rating" and unit != "missing":
+        rating = v.get("limit")  # the limit is the part's rating itself
+    rating_cell = _value(rating, unit, rule) if isinstance(rating, (int, float)) else ""
     basis = str(v.get("basis", "") or "")
     ref = ""
     if basis:
         if basis not in bases:
             bases.append(basis)
         ref = f"[{bases.index(basis) + 1}]"
-    return [_plain(str(v.get("part", ""))), _plain(rule), _value(v.get("value"), unit, rule), limit, m, shown,
-            _plain(str(v.get("corner", "") or "")), ref]
+    return [_plain(str(v.get("part", ""))), _plain(rule), _value(v.get("value"), unit, rule), rating_cell, limit, m,
+            shown, _plain(str(v.get("corner", "") or "")), ref]
 
 
 def _plain(text: str) -> str:
@@ -485,10 +502,57 @@ def _check_summary(doc: Document, checks: Any) -> None:
     if s.get("not_checked"):
         doc.paragraph("Not checked, because the design gives no rating:")
         doc.bullets([str(x) for x in s["not_checked"]], markup=False)
+    _fix_section(doc, checks)
     fz = s.get("fuse") or {}
     if fz.get("rating_a"):
-        doc.paragraph(f"Suggested fuse: **{eng(fz['rating_a'], 'A')} {fz.get('type', '')}**, {fz.get('where', '')} "
-                      f"({fz.get('why', '')}; highest RMS current {eng(fz.get('rms_current_a', 0.0), 'A')}).")
+        doc.paragraph(f"Suggested fuse: **{eng(fz['rating_a'], 'A')} {fz.get('type', '')}**, {fz.get('where', '')}: "
+                      f"{fz.get('why', '')}; {fz.get('current', 'the current')} is {eng(fz.get('current_a', 0.0), 'A')}"
+                      f"{' at ' + fz['corner'] if fz.get('corner') else ''}.")
+
+
+def _fix_section(doc: Document, checks: Any) -> None:
+    """What to change, fix by fix, and every fix as one --set line."""
+    bad = [v for v in checks.verdicts if v.verdict != "pass" and getattr(v, "fix", None) is not None]
+    if not bad:
+        return
+    groups: dict[str, list[str]] = {}
+    for v in bad:
+        sets = ", ".join(f"--set {a.text()}" for a in v.fix.sets)
+        key = v.fix.reason + (f"; set: {sets}" if sets else " (no design key to set)")
+        groups.setdefault(key, []).append(f"{v.part} {v.rule}")
+    doc.paragraph("To fix (stock values; apply them all, then check again):")
+    doc.bullets([f"{', '.join(which)}: {reason}" for reason, which in groups.items()], markup=False)
+    line = getattr(checks, "fix_line", "")
+    if line:
+        doc.paragraph("Every fix at once, as `simkit check` options:")
+        doc.code(line, "sh")
+
+
+def _verdict_summary(checks: Any, check_error: str = "") -> str:
+    """The Summary's first words: the overall verdict and the worst failures (or why there is none)."""
+    if checks is None:
+        return f"**Verdict: not checked** ({check_error})." if check_error else ""
+    s = checks.summary()
+    head = (f"**Verdict: {s['result'].upper()}** at the corners of `simkit check`: {s['fail']} fail, "
+            f"{s['marginal']} marginal, {s['pass']} pass")
+    if s.get("fails_above_rating"):
+        head += f" ({s['fails_above_rating']} above the part's absolute rating)"
+    worst = checks.worst(3) if hasattr(checks, "worst") else []
+    if worst:
+        items = []
+        for v in worst:
+            times = v.times_limit
+            if v.unit == "missing":
+                how = "none fitted"
+            elif v.exceeds == "rating" and v.rating is not None:
+                how = f"rated {_value(v.rating, v.unit, v.rule)}"
+            elif times is not None and v.verdict == "fail" and not v.minimum and times >= 2:
+                how = f"x{times:.2g} its limit of {_value(v.limit, v.unit, v.rule)}"
+            else:
+                how = f"limit {_value(v.limit, v.unit, v.rule)}"
+            items.append(f"{_plain(v.part)} {_plain(v.rule)} {_value(v.value, v.unit, v.rule)} ({how})")
+        head += ". Worst: " + "; ".join(items)
+    return head + "."
 
 
 def _unit_from_rule(rule: str) -> str:

@@ -91,6 +91,10 @@ def part_of(circuit: Circuit, name: str) -> str | None:
         return name[1:]
     if re.fullmatch(r"V\d+", name):
         return name  # a winding's EMF, or the current sense of an inverter output drawn as that winding
+    if re.fullmatch(r"RSH\d+", name):
+        return "D" + name[3:]  # the sharing resistors of a diode string: drawn with the string's label
+    if re.fullmatch(r"(VH|RWH|RH)\d+", name):
+        return "V1"  # heater windings and their heaters: part of the transformer, drawn as its winding
     if re.fullmatch(r"RW\d+", name) and not any(r.name == name for r in circuit.resistors):
         return None  # the 0 ohm link of a winding given no resistance
     if helper_element(name):
@@ -506,6 +510,9 @@ class _Sheet:
         what = f"inverter, {inverter.waveform}\n" if inverter is not None else ""
         battery = getattr(self.design, "battery", None)
         fed = f"\nfrom {eng(battery.voltage, 'V')} battery" if battery is not None and inverter is not None else ""
+        tr = getattr(s, "transformer", None)
+        if k == 1 and tr is not None and tr.heaters:  # the heater windings on the same core (VH1, ...)
+            fed += "".join(f"\nheaters {eng(h.vrms, 'V')} {eng(h.i, 'A')}" for h in tr.heaters)
         items = [(wd.name, "source", f"{wd.name}\n{what}{eng(wd.vrms, 'V')} rms\n{eng(s.frequency, 'Hz')}{phase}{fed}")]
         for r in self.c.resistors:
             if r.name == f"RW{k}":
@@ -518,7 +525,11 @@ class _Sheet:
     def diode_label(self, names: Sequence[str]) -> str:
         model = self.design.rectifier.diode
         if not self.vacuum:
-            return f"{', '.join(names)}\n{model.name if model.name != 'inline' else 'inline model'}"
+            rect = self.design.rectifier
+            name = model.name if model.name != 'inline' else 'inline model'
+            if rect.series > 1:  # a string: how many, and its sharing resistors
+                name = f"{rect.series} x {name}" + (f"\n{eng(rect.sharing, 'Ω')} across each" if rect.sharing else "")
+            return f"{', '.join(names)}\n{name}"
         from simkit.parts.tubes import lookup
 
         part = lookup(model.name)

@@ -67,10 +67,11 @@ class SizeResult:
     met: bool
     log_scale: bool
     evaluations: list[tuple[float, float]] = field(default_factory=list)  # (value, figure), in order
+    stock: StockAnswer | None = None  # with --stock: the stock value to buy and its neighbour
 
     @property
     def simulations(self) -> int:
-        return len(self.evaluations)
+        return len(self.evaluations) + (self.stock.simulations if self.stock is not None else 0)
 
     def to_json(self) -> dict[str, Any]:
         from simkit import __version__
@@ -80,7 +81,27 @@ class SizeResult:
                                               "value": self.target.value},
                 "value": self.value, "figure": self.figure, "met": self.met, "log_scale": self.log_scale,
                 "simulations": self.simulations,
-                "evaluations": [{"value": x, "figure": y} for x, y in self.evaluations]}
+                "evaluations": [{"value": x, "figure": y} for x, y in self.evaluations],
+                **({"stock": self.stock.to_json()} if self.stock is not None else {})}
+
+
+@dataclass
+class StockAnswer:
+    """``size --stock``: the stock value that meets the target, and the neighbour on the other side that misses it."""
+
+    series: str
+    value: float
+    figure: float
+    met: bool
+    neighbour: float | None
+    neighbour_figure: float | None
+    neighbour_met: bool | None
+    simulations: int
+
+    def to_json(self) -> dict[str, Any]:
+        return {"series": self.series, "value": self.value, "figure": self.figure, "met": self.met,
+                "neighbour": None if self.neighbour is None else {
+                    "value": self.neighbour, "figure": self.neighbour_figure, "met": self.neighbour_met}}
 
 
 def parse_target(text: str) -> Target:
@@ -123,7 +144,7 @@ def parse_bracket(item: str) -> tuple[str, float, float]:
 def run_size(design_file: str | Path, vary: str, target_text: str, overrides: Sequence[str] = (),
              ftol: float = 0.005, rtol: float = 1e-3, max_simulations: int = 40,
              simulate_fn: Callable[[Any], dict[str, float]] | None = None,
-             stream: TextIO | None = None) -> SizeResult:
+             stream: TextIO | None = None, stock_series: str | None = None) -> SizeResult:
     """Find the value of one design parameter that meets a target figure.
 
     Parameters
@@ -146,6 +167,9 @@ def run_size(design_file: str | Path, vary: str, target_text: str, overrides: Se
         Design -> figures (default: simulate with this process's engine).
     stream : file, optional
         Where each step is reported (default stderr).
+    stock_series : str, optional
+        ``"E12"``, ``"E24"``, ``"E6"`` or ``"E3"``: also answer with the stock value of that series
+        (IEC 60063) that meets the target, and its neighbour that misses it.
 
     Example
     -------
@@ -219,7 +243,43 @@ def run_size(design_file: str | Path, vary: str, target_text: str, overrides: Se
     meeting = [(x, y) for x, y in evaluations if target.met(y, ftol)]
     pool = meeting or evaluations
     best_x, best_y = min(pool, key=lambda e: abs(e[1] - target.value))
-    return SizeResult(base.title, path, low, high, target, best_x, best_y, bool(meeting), log, evaluations)
+    result = SizeResult(base.title, path, low, high, target, best_x, best_y, bool(meeting), log, evaluations)
+    if stock_series is not None:
+        up = target.met(evaluations[1][1], ftol)  # the high end meets: larger values meet
+        result.stock = _stock_answer(stock_series, best_x, up, target, ftol, figure_at)
+    return result
+
+
+def _stock_answer(name: str, x: float, up: bool, target: Target, ftol: float,
+                  figure_at: Callable[[float], float]) -> StockAnswer:
+    """The stock value on the meeting side of ``x`` (stepping further if it misses), and its neighbour."""
+    from simkit import stock
+
+    if x <= 0:
+        raise UsageError(f"--stock {name}: the answer {x:g} is not positive, so no stock value holds it")
+    sims = 0
+    if target.op == "=":  # the nearer of the two neighbours
+        lo, hi = stock.neighbours(x, name)
+        y_lo, y_hi = figure_at(lo), figure_at(hi) if hi != lo else None
+        sims += 1 if y_hi is None else 2
+        if y_hi is None or abs(y_lo - target.value) <= abs(y_hi - target.value):
+            return StockAnswer(name, lo, y_lo, target.met(y_lo, ftol), hi if y_hi is not None else None, y_hi,
+                               None if y_hi is None else target.met(y_hi, ftol), sims)
+        return StockAnswer(name, hi, y_hi, target.met(y_hi, ftol), lo, y_lo, target.met(y_lo, ftol), sims)
+    step = stock.at_least if up else stock.at_most
+    value = step(x, name)
+    y = figure_at(value)
+    sims += 1
+    for _ in range(3):  # the boundary value misses by rounding: one stock step further
+        if target.met(y, ftol):
+            break
+        value = step(value * (1.0001 if up else 0.9999), name)
+        y = figure_at(value)
+        sims += 1
+    other = (stock.at_most if up else stock.at_least)(value * (0.9999 if up else 1.0001), name)
+    y_other = figure_at(other)
+    sims += 1
+    return StockAnswer(name, value, y, target.met(y, ftol), other, y_other, target.met(y_other, ftol), sims)
 
 
 def _simulate_metrics(design: Any) -> dict[str, float]:
@@ -233,7 +293,16 @@ def summary_text(result: SizeResult) -> str:
     xunit = unit_of_path(result.path)
     verdict = "meets" if result.met else "does NOT meet"
     scale = "logarithmic" if result.log_scale else "linear"
-    return (f"{result.path} = {eng(result.value, xunit)} gives {result.target.figure} = {eng(result.figure, unit)}, "
-            f"which {verdict} {result.target.text(unit)}\n"
-            f"  found in {result.simulations} simulations ({scale} search of {eng(result.low, xunit)} to "
-            f"{eng(result.high, xunit)})\n")
+    text = (f"{result.path} = {eng(result.value, xunit)} gives {result.target.figure} = {eng(result.figure, unit)}, "
+            f"which {verdict} {result.target.text(unit)}\n")
+    st = result.stock
+    if st is not None:
+        word = "meets" if st.met else "does NOT meet"
+        text += (f"  stock ({st.series}): {result.path} = {eng(st.value, xunit)} gives {eng(st.figure, unit)}, which "
+                 f"{word} the target\n")
+        if st.neighbour is not None and st.neighbour_figure is not None:
+            word = "meets it too" if st.neighbour_met else "misses it"
+            text += (f"  its neighbour {eng(st.neighbour, xunit)} gives {eng(st.neighbour_figure, unit)}, which "
+                     f"{word}\n")
+    return text + (f"  found in {result.simulations} simulations ({scale} search of {eng(result.low, xunit)} to "
+                   f"{eng(result.high, xunit)})\n")

@@ -1,7 +1,8 @@
 """``--vary PATH=SPEC`` parsing and the points of a sweep (grid or paired), each a design or an error.
 
-A SPEC is a list (``22u,47u,100u``), a linear range ``START:STOP:COUNT`` or a logarithmic one
-``START:STOP:COUNTlog``.  List items are taken as ``--set`` takes a value (TOML when valid,
+A SPEC is a list (``22u,47u,100u``), a linear range ``START:STOP:COUNT``, a logarithmic one
+``START:STOP:COUNTlog``, or the stock values of an E series between two values,
+``E12:22u:470u`` (IEC 60063; :mod:`simkit.stock`).  List items are taken as ``--set`` takes a value (TOML when valid,
 text otherwise), so a list may hold part names or topologies as well as numbers; range ends are
 engineering numbers and the steps are SI floats.
 
@@ -31,6 +32,7 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover
     import tomli as tomllib
 
+from simkit import stock
 from simkit.design.loader import apply_overrides, design_from_dict
 from simkit.design.model import Design
 from simkit.errors import DesignError, UsageError
@@ -42,6 +44,7 @@ MAX_POINTS = 100_000
 _UNITS_TRIED = ("", "F", "H", "ohm", "V", "A", "Hz", "s")
 _RANGE_COUNT = re.compile(r"^\s*([0-9]+)\s*(log)?\s*$", re.IGNORECASE)
 _PATH = re.compile(r"^[A-Za-z0-9_]+(\.[A-Za-z0-9_]+)*$")
+_STOCK = re.compile(r"^\s*[Ee](3|6|12|24)\s*:", re.ASCII)
 
 Value = float | int | str | bool
 
@@ -90,6 +93,8 @@ def parse_spec(spec: str, path: str = "") -> VarySpec:
     text = spec.strip()
     if not text:
         raise UsageError("empty SPEC; give a list (22u,47u) or a range (10u:1m:9log)")
+    if _STOCK.match(text):
+        return _parse_stock(text, path)
     if ":" in text:
         return _parse_range(text, path)
     items = [s.strip() for s in text.split(",")]
@@ -128,6 +133,28 @@ def _parse_range(text: str, path: str) -> VarySpec:
     else:
         values = linear_steps(start, stop, count)
     return VarySpec(path, text, "log" if log else "linear", tuple(values))
+
+
+def _parse_stock(text: str, path: str) -> VarySpec:
+    """``E12:22u:470u``: every value of an E series (IEC 60063) from START to STOP."""
+    parts = text.split(":")
+    if len(parts) != 3:
+        raise UsageError(f"{text!r}: a stock range is SERIES:START:STOP, e.g. E12:22u:470u")
+    name = parts[0].strip().upper()
+    try:
+        start = parse_number(parts[1])
+        stop = parse_number(parts[2])
+    except UnitError as exc:
+        raise UsageError(f"{text!r}: {exc}") from None
+    if not (start > 0 and stop > 0):
+        raise UsageError(f"{text!r}: a stock range needs positive START and STOP")
+    values = stock.between(start, stop, name)
+    if not values:
+        raise UsageError(f"{text!r}: no {name} value lies between {parts[1].strip()} and {parts[2].strip()}")
+    if len(values) > MAX_POINTS:  # pragma: no cover - would need a range of thousands of decades
+        raise UsageError(f"{text!r}: {len(values)} values is more than simkit sweeps ({MAX_POINTS})")
+    # E-series values stand about equal ratios apart: plotted and described as a log range.
+    return VarySpec(path, text, "log", tuple(values))
 
 
 def linear_steps(start: float, stop: float, count: int) -> list[float]:

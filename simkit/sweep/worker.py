@@ -70,7 +70,7 @@ def simulate_and_check(design: Any, warm: bool = True) -> dict[str, Any]:
     from simkit.checks import check_design
 
     out = simulate_point(design, warm)
-    report = check_design(design)
+    report = check_design(design, fixes=False)  # a point's verdicts only: fixes may cost simulations
     verdicts: dict[str, str] = {}
     for v in report.verdicts:
         key = f"{v.part} {v.rule}"
