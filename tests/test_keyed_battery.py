@@ -349,6 +349,24 @@ def test_idle_power_that_dominates_is_a_warning() -> None:
     assert any("idle power" in w and "sets the runtime" in w for w in r.warnings)
     idle = next(v for v in check_design(station(text)).verdicts if v.rule.startswith("inverter idle power"))
     assert idle.verdict == "marginal" and idle.value > 50
+    assert idle.fix is not None and not idle.fix.sets and "smaller inverter" in idle.fix.reason
+
+
+@pytest.mark.ngspice
+def test_an_inverter_short_of_its_surge_gets_a_rating_that_passes() -> None:
+    # The fix interface (docs/reference.md, Fixes): the surge rating to buy, R10 (IEC 60063 style series),
+    # with the marginal band to spare; applied, the verdict passes (the switch-on itself does not change).
+    from simkit.checks import check_design
+    from simkit.design.loader import apply_overrides, design_from_dict, parse_toml_text
+
+    text = STATION.replace('rated_power = "150"', 'rated_power = "150"\npeak_power = "50"')
+    on = next(v for v in check_design(station(text)).verdicts if v.rule == "inverter switch-on power")
+    assert on.verdict == "fail" and on.fix is not None
+    (a,) = on.fix.sets
+    assert a.path == "source.peak_power" and a.value >= on.value / (1 - 0.1 - 0.01)
+    fixed = design_from_dict(apply_overrides(parse_toml_text(text), [a.text()], "station.toml"))
+    again = next(v for v in check_design(fixed).verdicts if v.rule == "inverter switch-on power")
+    assert again.verdict == "pass"
 
 
 def test_worst_switch_on_instant_per_waveform() -> None:

@@ -111,7 +111,7 @@ def test_part_currents_obey_kirchhoff_and_the_balances() -> None:
     assert -float(np.min(w["v(D1)"].value)) == pytest.approx(r.parts["D1"].piv_v, rel=1e-12)
     assert float(np.max(w["D1"].value)) == pytest.approx(r.parts["D1"].peak_a, rel=1e-12)
     # Ohm's law on the bleeder: its current is its voltage over 100 k.
-    assert np.allclose(w["RBLEED"].value, w["v(RBLEED)"].value / 100e3, rtol=1e-12, atol=0)
+    assert np.allclose(w["RBLEED"].value, w["v(RBLEED)"].value / r.design.bleeder.r, rtol=1e-12, atol=0)
 
 
 @pytest.mark.ngspice

@@ -15,9 +15,13 @@ voltages, so every verdict here takes the worse of the two.
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 from simkit.checks.corners import Corners
-from simkit.checks.rules import Findings, Verdict, judge
+from simkit.checks.fix import Assignment, Fix
+from simkit.checks.rules import Findings, make_verdict
 from simkit.design.model import Design, KeyedLoad
+from simkit.stock import StockError, at_least
 
 #: Above this share of the battery power the inverter's idle power dominates the runtime (common practice).
 IDLE_SHARE = 0.5
@@ -32,16 +36,26 @@ def supply_verdicts(design: Design, corners: Corners, findings: Findings) -> Non
     cn = corners.names
     loaded = [n for n in (cn["light"], cn["heavy"], cn["low"]) if n in corners.results]
 
-    def add(rule: str, value: float, limit: float, unit: str, corner: str, basis: str) -> None:
-        verdict, margin = judge(value, limit, pol.marginal)
-        findings.verdicts.append(Verdict("V1", rule, value, limit, unit, corner, verdict, margin, basis))
+    def add(rule: str, value: float, limit: float, unit: str, corner: str, basis: str, code: str,
+            fix: Fix | None = None) -> None:
+        findings.verdicts.append(make_verdict(pol, "V1", rule, value, limit, unit, corner, basis, rating=limit,
+                                              code=code, fix=fix))
+
+    def rated(path: str, need: float, what: str) -> Fix | None:
+        """An inverter rated for ``need`` (watts) with the marginal band to spare, in the R10 series."""
+        try:
+            w = at_least(need / (1 - pol.marginal - 0.01), "R10")
+        except StockError:
+            return None  # propose() says that no stock part takes it
+        return Fix((Assignment(path, w),), f"an inverter {what} {w:g} W or more")
 
     powers = [(corners.results[n].metrics.get("output_power_w"), n) for n in loaded]
     known = [(p, n) for p, n in powers if p is not None]
     if known:
         p, where = max(known)
         add("inverter output power, key down", p, inv.rated_power, "W", where,
-            f"rated {inv.rated_power:g} W (source.rated_power); the mean real power with the heaviest load")
+            f"rated {inv.rated_power:g} W (source.rated_power); the mean real power with the heaviest load",
+            "inverter.power", rated("source.rated_power", p, "rated for"))
     heavy = corners.results.get(cn["heavy"])
     surge = heavy.metrics.get("inverter_switch_on_power_w") if heavy is not None else None
     if surge is not None:
@@ -49,17 +63,22 @@ def supply_verdicts(design: Design, corners: Corners, findings: Findings) -> Non
         add("inverter switch-on power", surge, inv.peak_power, "W", cn["on"],
             f"surge rating {inv.peak_power:g} W ({given})"
             "; the highest mean over one period while the empty capacitors charge: an inverter short of it "
-            "limits its current or shuts down at switch-on")
+            "limits its current or shuts down at switch-on", "inverter.surge",
+            rated("source.peak_power", surge, "whose surge rating (its maker's peak or start-up power) is"))
     if design.battery is not None and inv.idle_power > 0:
         share = idle_share(design, corners)
         if share is not None:
             value, where = share
-            verdict = "marginal" if value > IDLE_SHARE else "pass"
-            findings.verdicts.append(Verdict(
-                "V1", "inverter idle power, share of the battery power", 100 * value, 100 * IDLE_SHARE, "%", where,
-                verdict, (IDLE_SHARE - value) / IDLE_SHARE,
-                f"a warning above {IDLE_SHARE:.0%}: the inverter's own {inv.idle_power:g} W (source.idle_power) "
-                "then sets the runtime more than the load does; a smaller inverter runs longer (common practice)"))
+            findings.verdicts.append(make_verdict(
+                pol, "V1", "inverter idle power, share of the battery power", 100 * value, 100 * IDLE_SHARE, "%",
+                where, f"a warning above {IDLE_SHARE:.0%}: the inverter's own {inv.idle_power:g} W "
+                "(source.idle_power) then sets the runtime more than the load does (common practice)",
+                code="inverter.idle", limit_kind="policy",
+                fix=Fix((), "a smaller inverter, or one with a lower idle power, runs longer on the same battery")))
+            # A warning above the share, never a failure; below it a pass (no marginal band).
+            v = findings.verdicts[-1]
+            findings.verdicts[-1] = replace(v, verdict="marginal") if value > IDLE_SHARE else \
+                replace(v, verdict="pass", fix=None)
 
 
 def idle_share(design: Design, corners: Corners) -> tuple[float, str] | None:

@@ -117,17 +117,15 @@ class Rectifier:
         if self.sharing is not None and self.series < 2:
             raise rd.fail(f"{path}.sharing", "a sharing resistor shares the voltage of a string: set series = 2 or "
                           "more")
+        if self.snubber is not None and self.diode.is_vacuum:
+            raise rd.fail(f"{path}.snubber", "a tube rectifier stores no charge to snap off at turn-off, so simkit "
+                          "does not model a snubber across its plates; fit one across the winding ([source] snubber)")
 
 
 def _refuse_string(rd: Reader, t: Mapping[str, Any], path: str) -> None:
     """Sharing resistors' rating belongs to sharing resistors."""
     if "sharing_rating" in t and "sharing" not in t:
         raise rd.fail(f"{path}.sharing_rating", "needs sharing (the resistance across each diode of the string)")
-
-    def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
-        if self.snubber is not None and self.diode.is_vacuum:
-            raise rd.fail(f"{path}.snubber", "a tube rectifier stores no charge to snap off at turn-off, so simkit "
-                          "does not model a snubber across its plates; fit one across the winding ([source] snubber)")
 
 
 def _filter_rating(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> PartRating:
