@@ -138,7 +138,7 @@ def apply_overrides(data: dict[str, Any], overrides: Sequence[str], file: str) -
             raise DesignError(f"--set {item!r}: expected PATH=VALUE, e.g. filter.0.c=220u", file=file)
         path, _, text = item.partition("=")
         path = path.strip()
-        value = _override_value(text.strip())
+        value = override_value(text.strip())
         parts = path.split(".")
         if not path or any(not p for p in parts):
             raise DesignError(f"--set {item!r}: empty part in the path", file=file)
@@ -150,7 +150,8 @@ def apply_overrides(data: dict[str, Any], overrides: Sequence[str], file: str) -
     return out
 
 
-def _override_value(text: str) -> Any:
+def override_value(text: str) -> Any:
+    """A ``--set`` value: TOML when it is one valid TOML value, else the text itself."""
     try:
         doc = tomllib.loads(f"v = {text}")
     except (ValueError, RecursionError):  # not TOML (or a number of thousands of digits): plain text

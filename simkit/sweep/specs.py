@@ -22,17 +22,12 @@ from __future__ import annotations
 import itertools
 import math
 import re
-import sys
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
-if sys.version_info >= (3, 11):
-    import tomllib
-else:  # pragma: no cover
-    import tomli as tomllib
-
 from simkit import stock
+from simkit.design.files import override_value
 from simkit.design.loader import apply_overrides, design_from_dict
 from simkit.design.model import Design
 from simkit.errors import DesignError, UsageError
@@ -191,11 +186,7 @@ def log_steps(start: float, stop: float, count: int) -> list[float]:
 
 def _list_value(text: str) -> Value:
     """A list item read as ``--set`` reads a value: TOML when it is valid TOML, else text."""
-    try:
-        doc = tomllib.loads(f"v = {text}")
-    except (ValueError, RecursionError):  # not TOML (or a number of thousands of digits): plain text
-        return text
-    v = doc["v"] if list(doc) == ["v"] else text
+    v = override_value(text)
     return v if isinstance(v, (str, int, float, bool)) else text
 
 
