@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from dataclasses import replace
 
 import numpy as np
 
@@ -32,6 +33,10 @@ FINE_START_PERIODS = 1
 SURGE_FIRST_STEP = 0.01
 #: The most steps per period the surge run takes (the measuring step, up to this).
 SURGE_MAX_STEPS = 4000
+#: Relative tolerance of the coarse part (a looser design reltol is kept): its figures are a peak and a
+#: crossing, not a ripple.  Measured on the shipped examples and the bench designs against reltol 1e-5:
+#: rise time and capacitor peak within 0.03 %, a fifth less time on a slow choke input (1e-3: 0.26 %).
+COARSE_RELTOL = 1e-4
 #: Periods per chunk of the coarse part.
 COARSE_CHUNK = 5
 #: The start-up run stops at the latest after this many periods, or 60 s (or three times the
@@ -115,8 +120,10 @@ def switch_on(engine: Engine, design: Design, circuit: Circuit, steps: int, targ
         state = {**end_state(circuit, first.waves), **end_nodes(circuit, first.waves)}
         chunk = COARSE_CHUNK * T
         means: list[float] = []
+        sim = design.simulation
+        loose = replace(design, simulation=replace(sim, reltol=max(sim.reltol, COARSE_RELTOL)))
         while t < limit - 1e-12:
-            run = run_span(engine, design, circuit, chunk, state, coarse_steps(design), offset=t)
+            run = run_span(engine, loose, circuit, chunk, state, coarse_steps(design), offset=t)
             t += chunk
             state = {**end_state(circuit, run.waves), **end_nodes(circuit, run.waves)}
             v = run.waves.v(out)
