@@ -32,6 +32,13 @@ def _simulate(design, vscale: float = 1.0):  # type: ignore[no-untyped-def]
     return simulate(design, vscale=vscale)
 
 
+def _mains_scale(design: Any, mains: str) -> float:
+    """1 +- the design's mains tolerance for --mains high/low (the API's rule)."""
+    from simkit.api import mains_scale
+
+    return mains_scale(design, mains)
+
+
 def _simulate_with(design, vscale: float, hash_: bool | None):  # type: ignore[no-untyped-def]
     """``_simulate``, with the high-frequency analysis forced on or off when ``--hash``/``--no-hash`` says so."""
     if hash_ is None:  # as the design says
@@ -44,22 +51,6 @@ def _simulate_with(design, vscale: float, hash_: bool | None):  # type: ignore[n
 HASH_HELP = ("With the high-frequency analysis (diode turn-off, ringing, hash at the output), or without it; "
              "by default as [simulation] hash says, or when the design has a snubber or an ultrafast diode fed "
              "through leakage inductance.")
-
-
-def _mains_scale(design: Any, mains: str) -> float:
-    """1 +- the design's mains tolerance for --mains high/low."""
-    if mains == "nominal":
-        return 1.0
-    from simkit.errors import DesignError
-
-    tol = design.source.mains_tolerance
-    if tol is None:
-        raise DesignError(f"--mains {mains} needs source.mains_tolerance (e.g. \"10%\")", file=design.origin,
-                          key="source.mains_tolerance")
-    if design.source.kind == "inverter":
-        raise DesignError("--mains applies to mains sources; an inverter's supply is its battery",
-                          file=design.origin, key="source.kind")
-    return 1.0 + tol if mains == "high" else 1.0 - tol
 
 
 def _battery_corner(design: Any, battery: str) -> Any:

@@ -9,6 +9,7 @@ import shlex
 from typing import Any
 
 from simkit.checks import CheckReport, NotChecked, Verdict
+from simkit.report.text import text_table
 from simkit.safety import CAUTIONS
 from simkit.units import eng
 
@@ -64,16 +65,6 @@ def _limit(v: Verdict) -> str:
     return "none" if v.unit == "missing" else _show(v.limit, v.unit)
 
 
-def _table(rows: list[tuple[str, ...]]) -> list[str]:
-    widths = [max(len(r[k]) for r in rows) for k in range(len(rows[0]))]
-    out = []
-    for k, r in enumerate(rows):
-        out.append("  " + "  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip())
-        if k == 0:
-            out.append("  " + "  ".join("-" * w for w in widths))
-    return out
-
-
 def report_text(rep: CheckReport, command: str = "") -> str:
     """The whole ``simkit check`` text.  ``command`` is how the design was checked, for the re-check line."""
     rows: list[tuple[str, ...]] = [("part", "rule", "value", "rating", "limit", "margin", "verdict", "corner")]
@@ -84,7 +75,7 @@ def report_text(rep: CheckReport, command: str = "") -> str:
         if isinstance(x, NotChecked):
             rows.append((x.part, x.rule, _show(x.value, x.unit) if x.value is not None else "", "none", "",
                          "", "not checked", x.corner))
-    lines = [f"{rep.design.title}", f"  design file: {rep.design.origin}", "", *_table(rows)]
+    lines = [f"{rep.design.title}", f"  design file: {rep.design.origin}", "", *text_table(rows)]
     s = rep.summary()
     lines.append("")
     lines.append(f"  {s['pass']} pass, {s['marginal']} marginal, {s['fail']} fail: {s['result'].upper()}"

@@ -8,7 +8,7 @@ from typing import TYPE_CHECKING
 from simkit.analysis.highfreq import HF_PERIODS
 from simkit.pipeline.noise import SNUBBER_C_RATIO
 from simkit.pipeline.results import DiodeResult
-from simkit.report.text import show
+from simkit.report.text import show, text_table
 from simkit.safety import CAUTIONS
 from simkit.units import eng, spice
 
@@ -31,20 +31,10 @@ def _rows(result: RunResult) -> list[tuple[str, str, str, str, str]]:
     return rows
 
 
-def _table(rows: list[tuple[str, ...]]) -> list[str]:
-    widths = [max(len(r[k]) for r in rows) for k in range(len(rows[0]))]
-    out = []
-    for k, r in enumerate(rows):
-        out.append("  " + "  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip())
-        if k == 0:
-            out.append("  " + "  ".join("-" * w for w in widths))
-    return out
-
-
 def _result_lines(result: RunResult, what: str) -> list[str]:
     m = result.metrics
     lines = [f"{what}:"]
-    lines += _table([("diode", "settled PIV", "ring", "above PIV", "decay (1/e)"), *_rows(result)])
+    lines += text_table([("diode", "settled PIV", "ring", "above PIV", "decay (1/e)"), *_rows(result)])
     band = eng(result.design.simulation.hash_band, "Hz")
     if "hash_rms_v" in m:
         lines.append(f"  hash at the output above {band}: {show('hash_rms_v', m['hash_rms_v'])} "

@@ -63,3 +63,14 @@ def run_table(result: RunResult) -> str:
         for wmsg in result.warnings:
             lines.append(f"    - {wmsg}")
     return "\n".join(lines) + "\n"
+
+
+def text_table(rows: list[tuple[str, ...]]) -> list[str]:
+    """Rows as aligned columns for the terminal, the first row a header underlined with dashes."""
+    widths = [max(len(r[k]) for r in rows) for k in range(len(rows[0]))]
+    out = []
+    for k, r in enumerate(rows):
+        out.append("  " + "  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip())
+        if k == 0:
+            out.append("  " + "  ".join("-" * w for w in widths))
+    return out
