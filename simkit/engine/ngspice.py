@@ -62,6 +62,8 @@ _FATAL_PATTERNS = (
 SHORT_RUN_POINTS = 20000
 
 _TRAN = re.compile(r"^\.tran\s+(\S+)\s+(\S+)\s+(\S+)\s+(\S+)", re.I | re.M)
+#: A capacitor or inductor line with its initial condition (as :mod:`simkit.netlist.circuit` writes it).
+_STATE_IC = re.compile(r"^([CL]\S*)(\s.*?)\sIC=(\S+)(.*)$", re.I)
 
 #: Seconds to wait for ngspice's background thread to report that it started.
 _START_TIMEOUT = 30.0
@@ -129,6 +131,11 @@ class Engine:
                 ) from None
         self._lib = self._ng._ngspice_shared
         self.runs = 0
+        self.reused = 0  # runs that altered the loaded circuit instead of loading a deck
+        self.reuse = True  # False: load every deck afresh (the tests compare the two ways)
+        #: The circuit ngspice holds between runs: its deck with every initial condition left out, and
+        #: those initial conditions as written (see :meth:`_run`).
+        self._loaded: tuple[str, dict[str, str]] | None = None
 
     def _command(self, text: str) -> int:
         with _sigint_held():
@@ -160,16 +167,35 @@ class Engine:
             return self._run(deck, tstop, save)
 
     def _run(self, deck: str, tstop: float, save: Iterable[str] | None) -> Waveforms:
+        """Load the deck (or alter the circuit already loaded, see below), run it, copy the vectors out.
+
+        Consecutive spans of one analysis differ only in where they start: the initial conditions of
+        the capacitors and inductors (and the step of the ``.tran``).  When a short run's deck is the
+        loaded circuit's in every other line, the circuit stays loaded: ``alter NAME ic=VALUE`` sets the
+        initial conditions that changed (the same text the deck holds, so the same numbers) and a
+        ``tran`` command runs it, saving ngspice the parse and set-up of the deck (a tenth of a
+        one-period span).  Any other deck, a long run or a failure loads afresh.
+        """
         ng = self._ng
         ng.clear_output()
         self.runs += 1
+        short = _expected_points(deck) <= SHORT_RUN_POINTS
+        shape, ics, tran = _deck_shape(deck) if short and self.reuse else ("", {}, None)
+        kept = False
         try:
             before = set(ng.plot_names)
-            if self._load(deck) != 0:
-                raise SimulationError("ngspice could not read the deck", deck=deck, log=self._messages())
-            if _expected_points(deck) <= SHORT_RUN_POINTS:
+            if tran is not None and self._alter(shape, ics):
+                command = f"tran {tran}"
+            else:
+                self._release()
+                if self._load(deck) != 0:
+                    raise SimulationError("ngspice could not read the deck", deck=deck, log=self._messages())
+                if tran is not None:
+                    self._loaded = (shape, ics)
+                command = "run"
+            if short:
                 with _sigint_held():
-                    rc = self._command("run")
+                    rc = self._command(command)
             else:
                 rc = self._run_in_background()
             log = self._messages()
@@ -187,9 +213,37 @@ class Engine:
                 raise SimulationError(
                     f"the transient run stopped at {reached:.6g} s of {tstop:.6g} s", deck=deck, log=log
                 )
+            kept = self._loaded is not None
             return Waveforms(time=t, vectors=data, log=log)
         finally:
-            self._cleanup()
+            self._cleanup(keep_circuit=kept)
+
+    def _alter(self, shape: str, ics: dict[str, str]) -> bool:
+        """Make the loaded circuit the deck of ``shape`` with initial conditions ``ics``; False when it is
+        another circuit (or ngspice objected), and the deck must be loaded."""
+        if self._loaded is None or self._loaded[0] != shape:
+            return False
+        held = self._loaded[1]
+        errors = len(self._ng._stderr)
+        for name, value in ics.items():
+            if held.get(name) != value:
+                if self._command(f"alter {name} ic={value}") != 0 or len(self._ng._stderr) != errors:
+                    return False
+                held[name] = value
+        self.reused += 1
+        return True
+
+    def _release(self) -> None:
+        """Remove the circuit kept loaded between runs, if any."""
+        if self._loaded is not None:
+            self._loaded = None
+            with _sigint_held():
+                self._command("remcirc")
+
+    def release(self) -> None:
+        """Free what ngspice still holds of the last run's circuit."""
+        with _LOCK:
+            self._release()
 
     def _load(self, deck: str) -> int:
         """Hand the deck to ngspice line by line (PySpice's own loader calls any output holding the
@@ -244,12 +298,14 @@ class Engine:
             out[name.lower()] = arr
         return out
 
-    def _cleanup(self) -> None:
+    def _cleanup(self, keep_circuit: bool = False) -> None:
         # Order matters: breakpoints survive remcirc unless deleted first (docs/engine-notes.md#cleanup).
         with _sigint_held():
             self._command("delete all")
             self._command("destroy all")
-            self._command("remcirc")
+            if not keep_circuit:
+                self._loaded = None
+                self._command("remcirc")
             if self.runs % 50 == 0:
                 self._lib.ngSpice_Command(self._ffi.NULL)  # free ngspice's command history
 
@@ -268,6 +324,29 @@ def _expected_points(deck: str) -> float:
     return tstop / tmax if tmax > 0 else float("inf")
 
 
+def _deck_shape(deck: str) -> tuple[str, dict[str, str], str | None]:
+    """A deck without its initial conditions and its ``.tran`` line; the initial conditions of its
+    capacitors and inductors (name: the value as written); the ``.tran`` line's arguments (None: none, or
+    a deck whose circuit the engine does not keep: one with subcircuits or files of its own, where a
+    name may not be the top-level element's or a file may change between runs)."""
+    lines = []
+    ics: dict[str, str] = {}
+    tran = None
+    for line in deck.splitlines():
+        if line[:1] == "." and line.split(None, 1)[0].lower() in (".subckt", ".include", ".inc", ".lib"):
+            return deck, {}, None
+        if line[:1] in "CcLl":
+            m = _STATE_IC.match(line)
+            if m is not None:
+                ics[m.group(1).lower()] = m.group(3)
+                line = m.group(1) + m.group(2) + m.group(4)
+        elif line[:5].lower() == ".tran":
+            tran = line[5:].strip()
+            continue
+        lines.append(line)
+    return "\n".join(lines), ics, tran
+
+
 def error_lines(stderr: Iterable[str], deck: str) -> list[str]:
     """The lines of ngspice's error stream that report a failure, leaving out echoes of the deck.
 
@@ -278,13 +357,14 @@ def error_lines(stderr: Iterable[str], deck: str) -> list[str]:
     >>> error_lines(["* error amplifier", "Error: circuit not parsed."], "* Error amplifier\\nR1 a 0 1k\\n")
     ['Error: circuit not parsed.']
     """
-    deck_lines = [_squash(line) for line in deck.splitlines()]
-    deck_lines = [d for d in deck_lines if d]
+    deck_lines: list[str] | None = None
     found = []
     for line in stderr:
         text = line.strip()
         if not text or not any(p.search(text) for p in _FATAL_PATTERNS):
             continue
+        if deck_lines is None:
+            deck_lines = [d for d in (_squash(line) for line in deck.splitlines()) if d]
         squashed = _squash(text)
         if any(squashed in d for d in deck_lines):
             continue  # an echo of the deck
