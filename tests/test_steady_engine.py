@@ -201,6 +201,62 @@ def test_warm_start_gives_the_same_figures() -> None:
     assert warm.steady.settle_time < cold.steady.settle_time
 
 
+def test_the_kept_circuit_gives_the_figures_of_a_fresh_load_every_span() -> None:
+    # Newton's spans alter the circuit ngspice holds instead of loading each deck (simkit.engine): the
+    # figures must be those of loading every deck afresh.  Measured: the same to 1e-14 (ngspice's solver
+    # starts each run from what the last left in its matrices; its answer is the same to round-off).
+    from simkit.engine.ngspice import get_engine
+
+    d = design_from_dict(CASES["choke input"])
+    engine = get_engine()
+    before = engine.reused
+    kept = simulate(d)
+    assert engine.reused > before
+    engine.reuse = False
+    try:
+        fresh = simulate(d)
+    finally:
+        engine.reuse = True
+    assert kept.metrics.keys() == fresh.metrics.keys()
+    for f, v in kept.metrics.items():
+        assert v == pytest.approx(fresh.metrics[f], rel=1e-9, abs=1e-12, nan_ok=True), f
+
+
+def test_the_warm_start_predicts_a_power_law_state_and_a_linear_jacobian() -> None:
+    # Along a sweep of the load, a choke's current goes as 1/R and the Jacobian's entries move smoothly:
+    # the predictor fits the state's logarithm against the values' logarithms, so from solutions at 1, 2
+    # and 4 kohm it predicts 8 kohm's state exactly (a straight fit of the state itself would give
+    # 0.05 A - 0.075 A for 400 V / 8 kohm = 0.05 A ... 0.0125 A off), and a Jacobian linear in log R.
+    import importlib
+
+    sim = importlib.import_module("simkit.pipeline.simulate")
+    saved = list(sim._WARM)
+    sim._WARM.clear()
+    try:
+        spec = CASES["choke input"]
+        circuits = {r: build_circuit(design_from_dict({**spec, "load": {"kind": "resistor", "r": r}}))
+                    for r in (1e3, 2e3, 4e3, 8e3)}
+        names = tuple(runs.state_names(circuits[1e3]))
+        n = len(names)
+
+        def state(r: float) -> np.ndarray:
+            return np.array([400.0 / r if name.startswith("L") else 400.0 - r / 100 for name in names])
+
+        def jac(r: float) -> np.ndarray:
+            return np.full((n, n), 0.1) + 0.01 * math.log(r) * np.eye(n)
+
+        for r in (1e3, 2e3, 4e3):
+            sim._remember(circuits[r], 1.0, steady.Solution(names, state(r), jac(r), 400, 400))
+        got = sim._nearest(circuits[8e3], 1.0)
+        assert got is not None
+        chokes = [k for k, name in enumerate(names) if name.startswith("L")]
+        assert chokes
+        assert np.allclose(got.x[chokes], state(8e3)[chokes], rtol=1e-9)
+        assert np.allclose(got.jacobian, jac(8e3), rtol=1e-9)
+    finally:
+        sim._WARM[:] = saved
+
+
 def test_switch_on_run_keeps_bounded_memory_on_a_long_timeline() -> None:
     # A load that waits 40 s for its heaters: the start-up run covers the timeline, but chunks after the
     # rise keep about THIN_PER_PERIOD samples per period (plus each watched extreme).

@@ -37,8 +37,11 @@ SURGE_MAX_STEPS = 4000
 #: crossing, not a ripple.  Measured on the shipped examples and the bench designs against reltol 1e-5:
 #: rise time and capacitor peak within 0.03 %, a fifth less time on a slow choke input (1e-3: 0.26 %).
 COARSE_RELTOL = 1e-4
-#: Periods per chunk of the coarse part.
+#: Periods per chunk of the coarse part (the first chunk is longer when a choke's overshoot will take longer:
+#: :func:`first_chunk`).
 COARSE_CHUNK = 5
+#: The most periods of the first coarse chunk.
+FIRST_CHUNK_MAX = 100
 #: The start-up run stops at the latest after this many periods, or 60 s (or three times the
 #: timeline), whichever is shorter.
 MAX_START_PERIODS = 6000
@@ -61,6 +64,14 @@ def overshoot_span(design: Design, circuit: Circuit) -> float:
         if ind.role == "choke" and c_total > 0:
             span = max(span, 0.75 * 2 * math.pi * math.sqrt(ind.value * c_total))
     return min(span, max(FINE_START_PERIODS * T, 3.0))
+
+
+def first_chunk(design: Design, circuit: Circuit) -> int:
+    """Periods of the first coarse chunk: long enough for a choke's first overshoot and the two periods
+    that show it is past (:func:`overshoot_span`), so a slow filter needs one run where it needed many."""
+    T = circuit.period
+    first = math.ceil(overshoot_span(design, circuit) / T - 1e-9) + 2
+    return int(min(max(COARSE_CHUNK, first), FIRST_CHUNK_MAX))
 
 
 def coarse_steps(design: Design) -> int:
@@ -118,13 +129,14 @@ def switch_on(engine: Engine, design: Design, circuit: Circuit, steps: int, targ
         limit = start_limit(design, circuit)
         t = fine
         state = {**end_state(circuit, first.waves), **end_nodes(circuit, first.waves)}
-        chunk = COARSE_CHUNK * T
+        chunk = first_chunk(design, circuit) * T
         means: list[float] = []
         sim = design.simulation
         loose = replace(design, simulation=replace(sim, reltol=max(sim.reltol, COARSE_RELTOL)))
         while t < limit - 1e-12:
             run = run_span(engine, loose, circuit, chunk, state, coarse_steps(design), offset=t)
             t += chunk
+            chunk = COARSE_CHUNK * T
             state = {**end_state(circuit, run.waves), **end_nodes(circuit, run.waves)}
             v = run.waves.v(out)
             means += [p.mean for p in metrics.period_stats(run.waves.time, v, T, 0.0)]

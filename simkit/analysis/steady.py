@@ -73,6 +73,8 @@ JACOBIAN_STEPS = 200
 #: Finite-difference step of the Jacobian, relative to each variable's scale: well above the
 #: span-to-span integration noise (about 1e-5 of the scale at reltol 1e-4).
 FD_STEP = 1e-3
+#: A Newton step that leaves more than this share of the distance asks for a fresh Jacobian.
+KEEP_JACOBIAN = 0.7
 #: Newton iterations before the fallback takes over.
 NEWTON_ITERATIONS = 12
 
@@ -448,7 +450,11 @@ class _Newton:
             denom = float(s @ w)
             if denom > 0:
                 self.jac = jac + np.outer((fxn - fx) - jac @ s, w) / denom
-            if dn > 0.3 * dist and not fresh:  # Newton should gain far more: the Jacobian no longer fits
+            # Newton should gain far more than this: the Jacobian no longer fits.  (A step that keeps
+            # less of the distance is worth more than the n + 1 spans of a fresh Jacobian: a neighbour's
+            # Jacobian, Broyden-updated, typically keeps 0.1-0.5 of it; within the tolerance the steps
+            # refine against the ripple and the distance also carries the spans' integration noise.)
+            if dn > KEEP_JACOBIAN * dist and dist > self.tol and not fresh:
                 self.jac = None
             fresh = False
             x, fx, run = xn, fxn, runn

@@ -44,11 +44,11 @@ def _fingerprint(circuit: Circuit, vscale: float) -> tuple[tuple[object, ...], n
 def _nearest(circuit: Circuit, vscale: float) -> Solution | None:
     """A warm start from the kept solutions of designs with the same structure, if any.
 
-    The nearest design's state, moved by a local linear fit through the nearest few: in a sweep
-    the state changes smoothly with the varied values, so the differences between solved
-    neighbours (along one row of a grid, and between rows) predict the next point's state far
-    better than its nearest neighbour alone (the predictor only shortens Newton's way, never its
-    answer).
+    The nearest design's state and Jacobian, moved by a local linear fit (in the logarithms of the
+    values) through the nearest few: in a sweep they change smoothly with the varied values, so
+    the differences between solved neighbours (along one row of a grid, and between rows) predict
+    the next point far better than its nearest neighbour alone (the predictor only shortens
+    Newton's way, never its answer).
     """
     key, values = _fingerprint(circuit, vscale)
     near = sorted(((float(np.sum(np.abs(v - values))), v, sol) for k, v, sol in _WARM
@@ -61,11 +61,26 @@ def _nearest(circuit: Circuit, vscale: float) -> Solution | None:
         return s1
     # values - v1 as a combination of the neighbours' offsets from v1; the states move the same way.
     offsets = np.array([v - v1 for v, _ in others])
-    moves = np.array([sol.x - s1.x for _, sol in others])
+    # A state variable of one sign in every neighbour, within a factor of ten, moves as a power of the
+    # values (a choke current as 1/R): its logarithm is fitted; one that changes sign or scale (a leakage
+    # current at the period's start) is fitted as it is.
+    states = np.array([s1.x, *(sol.x for _, sol in others)])
+    size = np.abs(states)
+    positive = (np.all(states > 0, axis=0) | np.all(states < 0, axis=0)) & \
+        (np.max(size, axis=0) <= 10 * np.min(size, axis=0))
+    ys = np.where(positive, np.log(np.abs(np.where(positive, states, 1.0))), states)
+    moves = ys[1:] - ys[0]
     coef, *_ = np.linalg.lstsq(offsets.T, values - v1, rcond=1e-9)
     if not np.all(np.isfinite(coef)) or float(np.sum(np.abs(coef))) > 3.0:
         return s1  # far outside what the neighbours span: no extrapolation
-    return replace(s1, x=s1.x + coef @ moves)
+    y = ys[0] + coef @ moves
+    x = np.where(positive, np.sign(s1.x) * np.exp(np.where(positive, y, 0.0)), y)
+    # The period map's Jacobian moves with the values too (a slow mode's rate goes as 1/RC): fitted the
+    # same way, it lets Newton gain about 25 times per step instead of 5 (measured on bench/'s C-L-C sweep).
+    jac = s1.jacobian
+    if jac is not None and all(sol.jacobian is not None and sol.jacobian.shape == jac.shape for _, sol in others):
+        jac = jac + np.tensordot(coef, np.array([sol.jacobian - jac for _, sol in others]), axes=1)
+    return replace(s1, x=x, jacobian=jac)
 
 
 def _remember(circuit: Circuit, vscale: float, solution: Solution) -> None:
