@@ -29,10 +29,7 @@ from __future__ import annotations
 import argparse
 import csv
 import json
-import math
 import os
-import re
-import shutil
 import subprocess
 import sys
 import tempfile
@@ -40,6 +37,8 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
+
+from _common import exe, loadavg, parse_meas, rel  # bench/ is on the path: the scripts run as files
 
 CLC = """\
 title = "Benchmark (invented): bridge into C-L-C, 300 V 50 Hz"
@@ -95,22 +94,6 @@ STEP_CHOICES = (50, 100, 200, 400, 1000)
 TOL = {"vout_dc_v": 0.002, "ripple_pp_v": 0.005, "diode_peak_a": 0.005}
 GOALS = {"clc": 0.3, "choke": 0.2}
 
-_MEAS = re.compile(r"^\s*([A-Za-z_]\w*)\s*=\s*([-+]?[0-9.]+(?:[eE][-+]?\d+)?)")
-
-
-def loadavg() -> str:
-    try:
-        return " ".join(f"{x:.2f}" for x in os.getloadavg())
-    except OSError:  # pragma: no cover
-        return "?"
-
-
-def exe(name: str) -> str:
-    near = Path(sys.executable).with_name(name)
-    found = str(near) if near.exists() else shutil.which(name)
-    if not found:
-        sys.exit(f"bench: {name} not found")
-    return found
 
 
 def points(vary: list[str]) -> list[dict[str, str]]:
@@ -142,17 +125,9 @@ def ngspice_b(ngspice: str, deck: Path) -> dict[str, float]:
     proc = subprocess.run([ngspice, "-b", str(deck)], capture_output=True, text=True, cwd=deck.parent, check=False)
     if proc.returncode != 0:
         raise RuntimeError(f"ngspice -b {deck} failed:\n{proc.stdout[-1500:]}\n{proc.stderr[-1500:]}")
-    found = {}
-    for line in proc.stdout.splitlines():
-        m = _MEAS.match(line)
-        if m:
-            found[m.group(1).lower()] = float(m.group(2))
+    found = parse_meas(proc.stdout)
     peaks = [v for k, v in found.items() if k.startswith("peak_")]
     return {"vout_dc_v": found["vout_dc_v"], "ripple_pp_v": found["ripple_pp_v"], "diode_peak_a": max(peaks)}
-
-
-def rel(a: float, b: float) -> float:
-    return abs(a - b) / abs(b) if b else math.inf
 
 
 @dataclass

@@ -31,17 +31,15 @@ from __future__ import annotations
 import argparse
 import csv
 import json
-import math
 import os
-import re
-import shutil
 import subprocess
-import sys
 import tempfile
 import time
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
+
+from _common import exe, loadavg, parse_meas, rel  # bench/ is on the path: the scripts run as files
 
 DOUBLER = """\
 title = "Benchmark (invented): Morse-keyed 60 Hz doubler, 6.4 s keying cycle"
@@ -144,22 +142,6 @@ NAIVE_STEPS = 200
 NAIVE_CYCLES = (2, 4, 8, 16, 32)
 REF_STEPS = 1000
 TOL = 0.005
-_MEAS = re.compile(r"^\s*([A-Za-z_]\w*)\s*=\s*([-+]?[0-9.]+(?:[eE][-+]?\d+)?)")
-
-
-def loadavg() -> str:
-    try:
-        return " ".join(f"{x:.2f}" for x in os.getloadavg())
-    except OSError:  # pragma: no cover
-        return "?"
-
-
-def exe(name: str) -> str:
-    near = Path(sys.executable).with_name(name)
-    found = str(near) if near.exists() else shutil.which(name)
-    if not found:
-        sys.exit(f"bench: {name} not found")
-    return found
 
 
 def intervals(design_file: Path, sets: list[str], c0: float, c1: float) -> tuple[list[tuple[float, float]],
@@ -206,11 +188,7 @@ def ngspice_b(ngspice: str, path: Path, downs: list[tuple[float, float]],
     wall = time.perf_counter() - t0
     if proc.returncode != 0:
         raise RuntimeError(f"ngspice -b {path} failed:\n{proc.stdout[-1500:]}\n{proc.stderr[-1500:]}")
-    found = {}
-    for line in proc.stdout.splitlines():
-        m = _MEAS.match(line)
-        if m:
-            found[m.group(1).lower()] = float(m.group(2))
+    found = parse_meas(proc.stdout)
     down = sum(found[f"kd{k}"] for k in range(len(downs))) / sum(b - a for a, b in downs)
     up = sum(found[f"ku{k}"] for k in range(len(ups))) / sum(b - a for a, b in ups)
     return wall, down, up
@@ -229,10 +207,6 @@ def simkit_run(simkit: str, design: Path) -> tuple[float, float, dict[str, Any]]
         if proc.returncode != 0:
             raise RuntimeError(f"simkit run {design} failed: {err.read()[-2000:]!r}")
         return wall, usage.ru_maxrss / 1024.0, json.loads(out.read())
-
-
-def rel(a: float, b: float) -> float:
-    return abs(a - b) / abs(b) if b else math.inf
 
 
 def run_case(case: Case, work: Path, ngspice: str, simkit: str, repeat: int) -> dict[str, Any]:

@@ -43,6 +43,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, cast
 
+from _common import parse_meas  # bench/ is on the path: the scripts run as files
+
 if TYPE_CHECKING:
     from simkit.design.model import Design
     from simkit.engine.ngspice import Engine, Waveforms
@@ -59,7 +61,6 @@ NAIVE_SPEEDUP_TARGET = 5.0
 #: (simkit's detector allows 0.2 % of the ripple per period).
 RIPPLE_SETTLED = 0.002
 
-_MEAS_LINE = re.compile(r"^\s*([A-Za-z_][\w]*)\s*=\s*([-+]?[0-9.]+(?:[eE][-+]?\d+)?)")
 
 
 # --------------------------------------------------------------------------------------------
@@ -110,16 +111,6 @@ class TimedEngine:
 
 # --------------------------------------------------------------------------------------------
 # the ngspice command line
-
-
-def parse_meas(stdout: str) -> dict[str, float]:
-    """``name = value`` lines of ngspice's measurement printout."""
-    found: dict[str, float] = {}
-    for line in stdout.splitlines():
-        m = _MEAS_LINE.match(line)
-        if m:
-            found[m.group(1).lower()] = float(m.group(2))
-    return found
 
 
 def ngspice_batch(exe: str, deck: Path) -> tuple[float, dict[str, float]]:
