@@ -147,32 +147,37 @@ class ProcessPool:
         attempts: collections.Counter[int] = collections.Counter()
         try:
             while queue or any(w.task is not None for w in self._workers):
-                # A new worker only for a point no idle worker will take (1 point: 1 worker).
-                while queue and len(self._workers) < self.jobs and \
-                        sum(1 for w in self._workers if w.task is None) < len(queue):
-                    self._spawn(ctx)
-                for w in list(self._workers):
-                    if w.task is None and queue:
-                        task = queue.popleft()
-                        try:
-                            w.conn.send(task)
-                        except OSError:  # this idle worker is gone: the point was never started
-                            queue.appendleft(task)
-                            self._drop(w)
-                            continue
-                        w.task = task
-                        attempts[task[0]] += 1
-                        w.started = time.monotonic()
+                self._dispatch(ctx, queue, attempts)
                 busy = [w for w in self._workers if w.task is not None]
                 waitables: list[Any] = [w.conn for w in busy] + [w.proc.sentinel for w in busy]
                 wait(waitables, timeout=self._wait_time(busy))
                 now = time.monotonic()
-                for w in busy:
-                    outcome = self._check(w, now, queue, attempts)
-                    if outcome is not None:
-                        yield outcome
+                done = [o for o in (self._check(w, now, queue, attempts) for w in busy) if o is not None]
+                if done:
+                    # The workers go on with their next points while the caller records these.
+                    self._dispatch(ctx, queue, attempts)
+                yield from done
         finally:
             self.close()
+
+    def _dispatch(self, ctx: Any, queue: collections.deque[tuple[int, Any]],
+                  attempts: collections.Counter[int]) -> None:
+        """Give every idle worker a point; start a worker only for a point no idle one will take."""
+        while queue and len(self._workers) < self.jobs and \
+                sum(1 for w in self._workers if w.task is None) < len(queue):
+            self._spawn(ctx)
+        for w in list(self._workers):
+            if w.task is None and queue:
+                task = queue.popleft()
+                try:
+                    w.conn.send(task)
+                except OSError:  # this idle worker is gone: the point was never started
+                    queue.appendleft(task)
+                    self._drop(w)
+                    continue
+                w.task = task
+                attempts[task[0]] += 1
+                w.started = time.monotonic()
 
     def _wait_time(self, busy: list[_Worker]) -> float:
         if self.timeout is None or not busy:
