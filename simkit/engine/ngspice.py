@@ -466,21 +466,23 @@ def _sigint_held() -> Iterator[None]:
 
 
 def _prefer_versioned_library() -> None:
-    """Debian ships the unversioned libngspice.so only in -dev; fall back to .so.0."""
+    """Debian ships the unversioned libngspice.so only in -dev; fall back to .so.0.
+
+    Only the usual folders are looked at (``ctypes.util.find_library`` would run ``ldconfig -p``, a
+    few milliseconds of every worker's start); anywhere else PySpice's own ``dlopen`` finds the
+    unversioned library, or NGSPICE_LIBRARY_PATH names it.
+    """
     if os.environ.get("NGSPICE_LIBRARY_PATH"):
         return
-    import ctypes.util
-
-    if ctypes.util.find_library("ngspice"):
-        for d in ("/usr/lib/x86_64-linux-gnu", "/usr/lib/aarch64-linux-gnu", "/usr/lib", "/usr/lib64",
-                  "/usr/local/lib"):
-            if os.path.exists(os.path.join(d, "libngspice.so")):
-                return
-        for d in ("/usr/lib/x86_64-linux-gnu", "/usr/lib/aarch64-linux-gnu", "/usr/lib", "/usr/lib64"):
-            cand = os.path.join(d, "libngspice.so.0")
-            if os.path.exists(cand):
-                os.environ["NGSPICE_LIBRARY_PATH"] = cand
-                return
+    for d in ("/usr/lib/x86_64-linux-gnu", "/usr/lib/aarch64-linux-gnu", "/usr/lib", "/usr/lib64",
+              "/usr/local/lib"):
+        if os.path.exists(os.path.join(d, "libngspice.so")):
+            return
+    for d in ("/usr/lib/x86_64-linux-gnu", "/usr/lib/aarch64-linux-gnu", "/usr/lib", "/usr/lib64"):
+        cand = os.path.join(d, "libngspice.so.0")
+        if os.path.exists(cand):
+            os.environ["NGSPICE_LIBRARY_PATH"] = cand
+            return
 
 
 _ENGINE: Engine | None = None
