@@ -18,10 +18,13 @@ filter, 8 s for the slow choke input) and the script reports whether it had sett
     deck ``simkit netlist`` exports for it (the same circuit, the steady-state span only).
 
 Accuracy: simkit's Vdc, ripple and diode peak on every point against the naive run, and on the
-corner points against the long reference.  Other processes make times noisy: the load average
+corner points against the long reference.  Each sweep runs ``--repeat`` times (default 3), in
+turn with its naive counterpart, and each side's fastest time counts: on a virtual machine whose
+speed drifts by 10 % within a minute, one run of each put the same code at 0.27 to 0.34.
+Other processes make times noisy too: the load average
 is printed; run it on a quiet machine.
 
-Run:  python bench/bench_engine.py [--quick] [--json FILE]
+Run:  python bench/bench_engine.py [--quick] [--repeat N] [--json FILE]
 """
 
 from __future__ import annotations
@@ -138,7 +141,7 @@ class Family:
     span: float
 
 
-def run_family(fam: Family, work: Path, ngspice: str, simkit: str, quick: bool) -> dict[str, Any]:
+def run_family(fam: Family, work: Path, ngspice: str, simkit: str, quick: bool, repeat: int) -> dict[str, Any]:
     design = work / f"{fam.name}.toml"
     design.write_text(fam.text, "utf-8")
     grid = points(fam.vary)
@@ -165,25 +168,28 @@ def run_family(fam: Family, work: Path, ngspice: str, simkit: str, quick: bool) 
             chosen = steps
             break
 
-    # The naive sweep: every point, one ngspice -b after another.
+    # The naive sweep (every point, one ngspice -b after another) and simkit's sweep (the whole command),
+    # taken in turn `repeat` times: each side's fastest counts, so a machine that speeds up or slows down
+    # during the benchmark favours neither.
     decks = []
     for k, sets in enumerate(grid):
         deck = work / f"{fam.name}-naive{k}.cir"
         deck.write_text(naive_deck(design, sets, fam.span, chosen, 1e-4), "utf-8")
         decks.append(deck)
-    t0 = time.perf_counter()
-    naive = [ngspice_b(ngspice, d) for d in decks]
-    naive_s = time.perf_counter() - t0
-
-    # simkit's sweep, the whole command.
-    out = work / f"{fam.name}-sweep"
     varies = [a for v in fam.vary for a in ("--vary", v)]
-    cmd = [simkit, "sweep", str(design), *varies, "--jobs", "1", "--out", str(out)]
-    t0 = time.perf_counter()
-    proc = subprocess.run(cmd, capture_output=True, text=True, check=False)
-    simkit_s = time.perf_counter() - t0
-    if proc.returncode != 0:
-        raise RuntimeError(f"simkit sweep failed:\n{proc.stderr[-2000:]}")
+    naive_times, simkit_times = [], []
+    for k in range(repeat):
+        t0 = time.perf_counter()
+        naive = [ngspice_b(ngspice, d) for d in decks]
+        naive_times.append(time.perf_counter() - t0)
+        out = work / f"{fam.name}-sweep{k}"
+        cmd = [simkit, "sweep", str(design), *varies, "--jobs", "1", "--out", str(out)]
+        t0 = time.perf_counter()
+        proc = subprocess.run(cmd, capture_output=True, text=True, check=False)
+        simkit_times.append(time.perf_counter() - t0)
+        if proc.returncode != 0:
+            raise RuntimeError(f"simkit sweep failed:\n{proc.stderr[-2000:]}")
+    naive_s, simkit_s = min(naive_times), min(simkit_times)
     with open(out / "sweep.csv", newline="", encoding="utf-8") as fh:
         rows = list(csv.DictReader(fh))
     worst_naive = {f: max(rel(float(r[f]), n[f]) for r, n in zip(rows, naive, strict=True)) for f in TOL}
@@ -196,6 +202,7 @@ def run_family(fam: Family, work: Path, ngspice: str, simkit: str, quick: bool) 
         "naive_step_trials": {f"T/{s}": round(v, 3) for s, v in trials.items()},
         "naive_s": naive_s, "simkit_s": simkit_s, "naive_per_point_ms": 1e3 * naive_s / n,
         "simkit_per_point_ms": 1e3 * simkit_s / n, "ratio": ratio, "goal": GOALS[fam.name],
+        "naive_times_s": naive_times, "simkit_times_s": simkit_times,
         "meets_goal": ratio <= GOALS[fam.name],
         "simkit_vs_naive": worst_naive, "simkit_vs_reference": worst_ref,
     }
@@ -230,8 +237,14 @@ def main() -> None:
     ap.add_argument("--quick", action="store_true", help="two corner points per reference instead of three")
     ap.add_argument("--json", type=Path, help="also write the results here")
     ap.add_argument("--only", choices=["clc", "choke", "startup"], action="append")
+    ap.add_argument("--repeat", type=int, default=3, help="times each sweep runs, in turn with the naive one; "
+                    "each side's fastest counts (default 3)")
     args = ap.parse_args()
     ngspice, simkit = exe("ngspice"), exe("simkit")
+    # simkit as installed: byte-compiled (pip does it; an editable install needs `make bytecode`, done here).
+    import simkit as package
+
+    subprocess.run([sys.executable, "-m", "compileall", "-q", str(Path(package.__file__).parent)], check=True)
     print(f"bench_engine: load average {loadavg()}, {os.cpu_count()} cores", flush=True)
     results: dict[str, Any] = {"load_average": loadavg()}
     fams = [Family("clc", CLC, CLC_VARY, CLC_SPAN), Family("choke", CHOKE, CHOKE_VARY, CHOKE_SPAN)]
@@ -240,12 +253,14 @@ def main() -> None:
         for fam in fams:
             if args.only and fam.name not in args.only:
                 continue
-            r = run_family(fam, work, ngspice, simkit, args.quick)
+            r = run_family(fam, work, ngspice, simkit, args.quick, args.repeat)
             results[fam.name] = r
             print(f"\n({fam.name}) {r['points']} points: naive ngspice -b {r['naive_span_s']:g} s at "
                   f"{r['naive_step']} (step trials, worst error / tolerance: {r['naive_step_trials']})")
-            print(f"  naive   {r['naive_per_point_ms']:8.1f} ms per point   ({r['naive_s']:.2f} s)")
-            print(f"  simkit  {r['simkit_per_point_ms']:8.1f} ms per point   ({r['simkit_s']:.2f} s, whole command)")
+            print(f"  naive   {r['naive_per_point_ms']:8.1f} ms per point   (fastest of "
+                  f"{', '.join(f'{x:.2f}' for x in r['naive_times_s'])} s)")
+            print(f"  simkit  {r['simkit_per_point_ms']:8.1f} ms per point   (fastest of "
+                  f"{', '.join(f'{x:.2f}' for x in r['simkit_times_s'])} s, whole command)")
             print(f"  ratio   {r['ratio']:.3f}   goal <= {r['goal']}   {'met' if r['meets_goal'] else 'NOT MET'}")
             print("  simkit vs naive (worst):     " + ", ".join(f"{k} {100 * v:.3f} %" for k, v in
                                                           r["simkit_vs_naive"].items()))
