@@ -55,6 +55,9 @@ CASES = {
     "choke input": _design("centre-tap", 350, 60, 60, 0, 3.3e3,
                            filters=[{"l": "10", "dcr": "150"}, {"c": "40u", "esr": "0.5"}]),
     "leakage inductance": _design("bridge", 250, 50, 15, 100e-6, 3e3, inductance=0.05),
+    "C-L-C": {**_design("bridge", 300, 50, 30, 0, 2e3, filters=[{"c": "22u", "esr": "0.5"}, {"l": "5", "dcr": "120"},
+                                                               {"c": "100u", "esr": "0.3"}]),
+              "bleeder": {"r": "100k"}},
 }
 FIGURES = ("vout_dc_v", "ripple_pp_v", "diode_peak_a", "diode_rms_a", "diode_avg_a", "diode_piv_v",
            "reservoir_ripple_a", "source_rms_a", "surge_peak_a", "cap_peak_v")
@@ -74,6 +77,15 @@ def test_automatic_step_matches_a_four_times_finer_run(name: str) -> None:
     assert auto.steady.steps <= 1000, "a step near the reference's would prove nothing"
     for f in FIGURES:
         assert auto.metrics[f] == pytest.approx(fine[f], rel=LIMIT.get(f, DEFAULT_LIMIT)), f
+
+
+def test_a_failed_halving_test_moves_to_the_step_it_predicts_not_to_twice_the_steps() -> None:
+    # This bridge into C-L-C fails the halving test at 200 steps a period by a little (its ripple moves
+    # 0.23 % at 400, measured): errors going as the step squared, about 250 steps pass (0.096 % at 500,
+    # measured), and they are what it measures at; test_automatic_step_matches_a_four_times_finer_run
+    # holds its figures against one period / 4000.
+    auto = simulate(design_from_dict(CASES["C-L-C"]))
+    assert 200 < auto.steady.steps < 400
 
 
 def test_the_step_follows_the_conduction_pulse() -> None:

@@ -16,7 +16,9 @@ does.
 The measuring step is chosen for accuracy: the fewest steps per period that put
 ``POINTS_PER_PULSE`` time points into the shortest diode conduction pulse (measured on the
 settled waveform), between ``MIN_STEPS`` and ``MAX_STEPS``, then the halving test: one more
-period at half the step must change no figure it affects by more than ``STEP_TOL``.
+period at half the step must change no figure it affects by more than ``STEP_TOL``, else the
+step becomes the one that change says will pass (errors go as the step squared) and is tested
+in turn.
 tests/test_steady_engine.py holds the choice against runs at one period / 4000 (at least four
 times finer) on every topology.
 
@@ -483,7 +485,11 @@ class _Newton:
         if os.environ.get("SIMKIT_DEBUG_STEADY"):
             print(f"steady: {self.steps} -> {finer} steps changes {what} by {diff:.3g}", file=sys.stderr)
         if diff > STEP_TOL:
-            self.steps = finer
+            # Trapezoidal integration: a figure's error goes as the step squared, so the step that passes is
+            # about sqrt(diff / STEP_TOL) finer than this one (a tenth more to spare), and it is checked in turn:
+            # the coarsest step that holds the figures, not the next power of two.
+            need = self.steps * math.sqrt(diff / STEP_TOL) * 1.1
+            self.steps = int(min(finer, max(self.steps + 50, math.ceil(need / 50.0) * 50)))
             return False
         self.verified = self.steps
         return True
