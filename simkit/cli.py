@@ -182,7 +182,7 @@ def _nominal_verdict(result: Any) -> None:
 @click.argument("design", type=click.Path())
 @click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
 @click.option("-o", "output", type=click.Path(dir_okay=False), help="Write the deck to this file "
-              "instead of stdout (an existing file is kept unless --force).")
+              "instead of stdout (an existing file is kept unless --force; - is stdout).")
 @click.option("--force", is_flag=True, help="With -o: replace an existing file.")
 @click.option("--nodes", is_flag=True, help="Instead of the deck: what each node of the deck is, what connects "
               "there, and the part names --probe takes (nothing is simulated).")
@@ -190,6 +190,8 @@ def netlist(design: str, overrides: tuple[str, ...], output: str | None, force: 
     """Print the SPICE deck of the steady-state run, with .meas lines for ngspice -b."""
     from simkit.report.outputs import PendingFile
 
+    if output == "-":  # the usual name for standard output, not a file called "-"
+        output = None
     d = _load(design, overrides)
     if nodes:
         _node_map(d, output, force)

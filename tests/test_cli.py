@@ -87,6 +87,10 @@ def test_netlist_to_file_keeps_existing_files(tmp_path: Path, capsys: pytest.Cap
     assert code == 0
     assert out.startswith("* simkit deck:") and out.rstrip().endswith(".end")
     assert ".meas tran vout_dc_v AVG v(out)" in out and ".meas tran ripple_pp_v PP v(out)" in out
+    # "-o -" is standard output, as usual, not a file named "-".
+    code, out2, _ = call(["netlist", str(p), "-o", "-"], capsys)
+    assert code == 0 and out2 == out
+    assert not (tmp_path / "-").exists() and not Path("-").exists()
 
 
 def test_simulation_failure_exits_3_with_advice(tmp_path: Path, capsys: pytest.CaptureFixture[str],
