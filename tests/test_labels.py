@@ -117,3 +117,9 @@ def test_size_answers_with_a_stock_value_and_its_neighbour(capsys: pytest.Captur
     res = run_size(EXAMPLES / "bench_amp_bridge_clc.toml", "filter.0.c=100u:1m", "ripple_pp_v>=2",
                    simulate_fn=fake, stock_series="E6")
     assert res.stock is not None and res.stock.value == 470e-6 and res.stock.neighbour == 680e-6
+    # The low end of the range already meets the target closely (10 V at 100 uF): the search stops after one
+    # simulation, and the high end, simulated once more, says larger values meet (ripple falls as 1/C).
+    res = run_size(EXAMPLES / "bench_amp_bridge_clc.toml", "filter.0.c=100u:1m", "ripple_pp_v<=10",
+                   simulate_fn=fake, stock_series="E12")
+    assert res.value == pytest.approx(100e-6) and res.stock is not None
+    assert res.stock.value == 100e-6 and res.stock.met and res.stock.neighbour == 82e-6

@@ -245,7 +245,10 @@ def run_size(design_file: str | Path, vary: str, target_text: str, overrides: Se
     best_x, best_y = min(pool, key=lambda e: abs(e[1] - target.value))
     result = SizeResult(base.title, path, low, high, target, best_x, best_y, bool(meeting), log, evaluations)
     if stock_series is not None:
-        up = target.met(evaluations[1][1], ftol)  # the high end meets: larger values meet
+        # The high end meets: larger values meet.  When the low end already met the target closely, the
+        # search never simulated the high end: that one more simulation says which way the stock value lies.
+        y_high = cache[u_hi] if u_hi in cache else figure_at(high)
+        up = target.met(y_high, ftol)
         result.stock = _stock_answer(stock_series, best_x, up, target, ftol, figure_at)
     return result
 
