@@ -450,13 +450,13 @@ class Verdicts:
         return len(self.report.verdicts)
 
     def _repr_html_(self) -> str:
-        from simkit.units import eng
+        from simkit.report.check_text import value_text
 
-        def cell(v: dict[str, Any], key: str) -> str:
-            x, unit = v.get(key), str(v.get("unit") or "")
-            if not isinstance(x, (int, float)) or isinstance(x, bool):
-                return "–" if x is None else html.escape(str(x))
-            return html.escape(eng(float(x), {"ohm": "Ω", "A2s": "A²s", "missing": ""}.get(unit, unit)))
+        def cell(v: dict[str, Any], key: str) -> str:  # as `simkit check` prints it
+            x = v.get(key)
+            if isinstance(x, bool) or not (x is None or isinstance(x, (int, float))):
+                return html.escape(str(x))
+            return html.escape(value_text(None if x is None else float(x), str(v.get("unit") or "")))
 
         rows = "".join(
             f"<tr><td>{html.escape(str(v['part']))}</td><td>{html.escape(str(v['rule']))}</td>"

@@ -17,7 +17,8 @@ from simkit.units import eng
 RATIO_FROM = 2.0
 
 
-def _show(v: float | None, unit: str) -> str:
+def value_text(v: float | None, unit: str) -> str:
+    """A verdict's value, rating or limit as the check table prints it (``never`` for an infinite time)."""
     if v is None:
         return "–"
     if unit == "missing":
@@ -57,23 +58,23 @@ def _rating(v: Verdict) -> str:
     if v.unit == "missing":
         return ""
     if v.rating is None:
-        return "" if v.limit_kind == "policy" else _show(v.limit, v.unit)
-    return _show(v.rating, v.unit)
+        return "" if v.limit_kind == "policy" else value_text(v.limit, v.unit)
+    return value_text(v.rating, v.unit)
 
 
 def _limit(v: Verdict) -> str:
-    return "none" if v.unit == "missing" else _show(v.limit, v.unit)
+    return "none" if v.unit == "missing" else value_text(v.limit, v.unit)
 
 
 def report_text(rep: CheckReport, command: str = "") -> str:
     """The whole ``simkit check`` text.  ``command`` is how the design was checked, for the re-check line."""
     rows: list[tuple[str, ...]] = [("part", "rule", "value", "rating", "limit", "margin", "verdict", "corner")]
     for v in rep.verdicts:
-        rows.append((v.part, v.rule, _show(v.value, v.unit), _rating(v), _limit(v), margin_text(v), verdict_text(v),
-                     v.corner))
+        rows.append((v.part, v.rule, value_text(v.value, v.unit), _rating(v), _limit(v), margin_text(v),
+                     verdict_text(v), v.corner))
     for x in rep.findings.not_checked:
         if isinstance(x, NotChecked):
-            rows.append((x.part, x.rule, _show(x.value, x.unit) if x.value is not None else "", "none", "",
+            rows.append((x.part, x.rule, value_text(x.value, x.unit) if x.value is not None else "", "none", "",
                          "", "not checked", x.corner))
     lines = [f"{rep.design.title}", f"  design file: {rep.design.origin}", "", *text_table(rows)]
     s = rep.summary()
