@@ -79,6 +79,15 @@ def test_check_counts_equal_check_json() -> None:
     assert verdicts.counts == {k: summary[k] for k in ("pass", "marginal", "fail")}
     assert verdicts.result == summary["result"] and verdicts.failed == (summary["fail"] > 0)
     assert json.loads(json.dumps(verdicts.to_json())) == doc
+    # The notebook table shows each value as `simkit check` prints it (no "mA²s" for an I²t, whose
+    # prefixes mislead; "never" for a time that never comes).
+    from simkit.report.check_text import value_text
+
+    shown = verdicts._repr_html_()
+    for v in verdicts.rows:
+        if isinstance(v["value"], float):
+            assert html.escape(value_text(v["value"], v["unit"] or "")) in shown, v
+    assert "mA²s" not in shown and "inf s" not in shown
 
 
 # -- loading -------------------------------------------------------------------------------------------
