@@ -69,6 +69,21 @@ def test_heater_windings_are_read_and_refused_when_wrong() -> None:
     assert info.value.key == "source.heaters"
 
 
+def test_the_kind_is_read_in_any_case_with_the_rectifiers_topology() -> None:
+    # "Transformer" is the kind "transformer" (the reader lower-cases choices): it gets the rectifier's
+    # topology too, so a centre-tap needs its centre tap and each half carries half the secondary.
+    text = BASE.replace("{load}", "").replace('kind = "transformer"', 'kind = "Transformer"').replace(
+        'topology = "bridge"', 'topology = "centre-tap"')
+    with pytest.raises(DesignError) as info:
+        design_from_dict(parse_toml_text(text))
+    assert info.value.key == "source.centre_tap"
+    lower = design_from_dict(parse_toml_text(text.replace("Transformer", "transformer").replace(
+        'secondary_vrms = "300"', 'secondary_vrms = "300"\ncentre_tap = true')))
+    upper = design_from_dict(parse_toml_text(text.replace('secondary_vrms = "300"',
+                                                          'secondary_vrms = "300"\ncentre_tap = true')))
+    assert upper.source == lower.source and upper.source.vrms == lower.source.vrms
+
+
 @pytest.mark.ngspice
 def test_heaters_alone_reflect_exactly() -> None:
     # The high-voltage winding idles (a reservoir and a 100 Meg bleeder: microamperes), so the primary carries the

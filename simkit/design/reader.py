@@ -231,9 +231,8 @@ def _section(rd: Reader, data: Mapping[str, Any], name: str, cls: type, default:
 def _source(rd: Reader, data: Mapping[str, Any], topology: str) -> Source:
     t = rd.table(data, "source", "source", required=True)
     assert t is not None
-    src = read_kind(rd, SOURCE_KINDS, t, "source", source_foreign, default="sine",
-                    **({"topology": topology} if t.get("kind") == "transformer" else {}))
-    return src
+    # The kind as the reader takes it ("Transformer" too): the topology goes to the kinds that have one.
+    return read_kind(rd, SOURCE_KINDS, t, "source", source_foreign, default="sine", topology=topology)
 
 
 def _regulator(rd: Reader, data: Mapping[str, Any]) -> Regulator | None:

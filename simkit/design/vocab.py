@@ -331,11 +331,15 @@ def read_section(rd: Reader, cls: type, table: Mapping[str, Any], path: str, **e
 
 
 def _build(rd: Reader, cls: type, table: Mapping[str, Any], path: str, extra: Mapping[str, Any]) -> Any:
-    """The class's refusals on the raw table, every key read, the object made, the class's rules on it."""
+    """The class's refusals on the raw table, every key read, the object made, the class's rules on it.
+
+    ``extra`` fields the file does not give (a transformer's topology) go to the classes that have them.
+    """
     refuse = getattr(cls, "refuse", None)
     if refuse is not None:
         refuse(rd, table, path)
-    obj = cls(**fields_of(rd, cls, table, path), **extra)
+    names = {f.name for f in dataclasses.fields(cls)}
+    obj = cls(**fields_of(rd, cls, table, path), **{k: v for k, v in extra.items() if k in names})
     rules = getattr(cls, "rules", None)
     if rules is not None:
         rules(obj, rd, table, path)
