@@ -331,6 +331,13 @@ def test_check_command_exit_codes_and_json(tmp_path, capsys) -> None:  # type: i
     out, _ = capsys.readouterr()
     assert info.value.code == 1
     assert "HIGH VOLTAGE" in out and "suggested fuse" in out and "slow-blow" in out
+    assert "(80 % of a diode's VRRM, 90 % of a capacitor's voltage, 50 % of a resistor's power)" in out
+    # The footer states the design's own derating, not the defaults.
+    p.write_text(p.read_text() + '\n[checks]\ndiode_voltage = "70%"\nresistor_power = "60%"\n')
+    with pytest.raises(SystemExit):
+        main(["check", str(p)])
+    out, _ = capsys.readouterr()
+    assert "(70 % of a diode's VRRM, 90 % of a capacitor's voltage, 60 % of a resistor's power)" in out
 
 
 @pytest.mark.ngspice

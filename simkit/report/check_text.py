@@ -92,9 +92,11 @@ def report_text(rep: CheckReport, command: str = "") -> str:
     lines.append(f"  suggested fuse: {eng(fz['rating_a'], 'A')} {fz['type']}, {fz['where']}: 1.5 x "
                  f"{fz['current']} at {fz['corner']}, {eng(fz['current_a'], 'A')} (common practice; slow-blow "
                  "because the switch-on surge would blow a fast fuse)")
-    lines.append("  rating: the part's own; limit: the rating after derating per [checks] (80 % of a diode's "
-                 "VRRM, 90 % of a capacitor's voltage, 50 % of a resistor's power); each limit's source is in "
-                 "--json (basis)")
+    pol = rep.design.checks
+    lines.append("  rating: the part's own; limit: the rating after derating per [checks] "
+                 f"({100 * pol.diode_voltage:g} % of a diode's VRRM, {100 * pol.capacitor_voltage:g} % of a "
+                 "capacitor's voltage, "
+                 f"{100 * pol.resistor_power:g} % of a resistor's power); each limit's source is in --json (basis)")
     lines.append("")
     lines.append(CAUTIONS)
     return "\n".join(lines) + "\n"
