@@ -48,10 +48,8 @@ def test_stock_values_above_and_below() -> None:
 
 
 def test_r10_series() -> None:
-    # ISO 3 R10 (num-3): 1, 1.25, 1.6, 2, 2.5, 3.15, 4, 5, 6.3, 8 per decade; the same numbers as the fuse series.
-    from simkit.checks import FUSE_SERIES
-
-    assert stock.R10 == FUSE_SERIES
+    # ISO 3 R10 (num-3): 1, 1.25, 1.6, 2, 2.5, 3.15, 4, 5, 6.3, 8 per decade (the fuse series too, next_fuse).
+    assert stock.R10 == (1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0)
     assert all(abs(m / 10 ** (i / 10) - 1) < 0.015 for i, m in enumerate(stock.R10))  # 10^(i/10), rounded
     assert stock.at_least(0.27, "R10") == 0.315 and stock.at_least(3.3, "R10") == 4.0
 

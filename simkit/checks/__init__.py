@@ -15,25 +15,21 @@ from simkit.design.model import Design
 from simkit.engine.ngspice import Engine
 from simkit.pipeline import RunResult
 from simkit.safety import CAUTIONS
+from simkit.stock import at_least
 
 __all__ = ["Assignment", "CheckReport", "Fix", "NotChecked", "Verdict", "check_design", "make_verdict",
            "next_fuse", "nominal_check", "suggest_fuse"]
 
-#: Preferred fuse ratings, A (the R10 series used for miniature fuses, IEC 60127 style; from memory [M]).
-FUSE_SERIES = (1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0)
 #: Added to a transformer's primary current for its magnetising current and losses (common practice).
 MAGNETISING = 0.10
 
 
 def next_fuse(current: float) -> float:
-    """The smallest preferred fuse rating at or above ``current``, A."""
+    """The smallest preferred fuse rating at or above ``current``, A: miniature fuses come in the R10 series
+    (IEC 60127 style, from memory [M]; :data:`simkit.stock.R10`)."""
     if current <= 0:
         return 0.05
-    decade = 10.0 ** math.floor(math.log10(current))
-    for m in (*FUSE_SERIES, 10.0):
-        if m * decade >= current * (1 - 1e-9):
-            return round(m * decade, 6)
-    return 10 * decade  # pragma: no cover
+    return at_least(current, "R10")
 
 
 @dataclass
