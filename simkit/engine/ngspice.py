@@ -2,7 +2,9 @@
 
 One engine per process, used by one thread at a time: threads sharing a libngspice crash it, so
 every call into ngspice holds a process-wide lock (a second thread waits for the first).  After
-every run the circuit and its plots are removed so hundreds of runs do not grow the process.
+every run its plots are removed, and its circuit too unless the next run is the same circuit from
+other initial conditions (then ngspice keeps it and the engine alters it: :meth:`Engine._run`), so
+hundreds of runs do not grow the process.
 
 Failures are read from ngspice's state, never from text that came from the design: the deck must
 load, the run must create a new transient plot whose time reaches the stop time, and ngspice must
@@ -16,10 +18,11 @@ of its own that holds an empty ``.spiceinit``, so neither the folder simkit was 
 the user's home folder can run anything; the installation's own ``spinit`` (code models) is read
 as usual.
 
-A transient run goes to ngspice's background thread while the calling thread waits: Ctrl-C then
-reaches Python at once, the run is halted (``bg_halt``) and cleaned up, and KeyboardInterrupt goes
-on to the caller.  ngspice's initialisation installs its own SIGINT handler; the engine puts the
-previous one back.
+A long transient run goes to ngspice's background thread while the calling thread waits: Ctrl-C
+then reaches Python at once, the run is halted (``bg_halt``) and cleaned up, and KeyboardInterrupt
+goes on to the caller.  A short one (``SHORT_RUN_POINTS``) runs on the calling thread with Ctrl-C
+held back until it returns, a fraction of a second.  ngspice's initialisation installs its own
+SIGINT handler; the engine puts the previous one back.
 """
 
 from __future__ import annotations
@@ -239,11 +242,6 @@ class Engine:
             self._loaded = None
             with _sigint_held():
                 self._command("remcirc")
-
-    def release(self) -> None:
-        """Free what ngspice still holds of the last run's circuit."""
-        with _LOCK:
-            self._release()
 
     def _load(self, deck: str) -> int:
         """Hand the deck to ngspice line by line (PySpice's own loader calls any output holding the
@@ -474,11 +472,11 @@ def _prefer_versioned_library() -> None:
     """
     if os.environ.get("NGSPICE_LIBRARY_PATH"):
         return
-    for d in ("/usr/lib/x86_64-linux-gnu", "/usr/lib/aarch64-linux-gnu", "/usr/lib", "/usr/lib64",
-              "/usr/local/lib"):
+    folders = ("/usr/lib/x86_64-linux-gnu", "/usr/lib/aarch64-linux-gnu", "/usr/lib", "/usr/lib64", "/usr/local/lib")
+    for d in folders:
         if os.path.exists(os.path.join(d, "libngspice.so")):
             return
-    for d in ("/usr/lib/x86_64-linux-gnu", "/usr/lib/aarch64-linux-gnu", "/usr/lib", "/usr/lib64"):
+    for d in folders:
         cand = os.path.join(d, "libngspice.so.0")
         if os.path.exists(cand):
             os.environ["NGSPICE_LIBRARY_PATH"] = cand
