@@ -272,7 +272,6 @@ def _battery_figures(design: Design, circuit: Circuit, w: Waveforms, window: tup
     m["input_power_w"] = p_in
     m["output_power_w"] = p_out
     m["efficiency"] = p_out / p_in if p_in > 0 else math.nan
-    m["runtime_h"] = b.capacity * b.usable_fraction / m["battery_current_a"] if m["battery_current_a"] > 0 \
-        else math.inf
+    # runtime_h comes with the inverter's figures (a battery feeds an inverter): Peukert's law over the trace.
 
 
