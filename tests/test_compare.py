@@ -76,6 +76,13 @@ def test_text_variants_and_report(two: tuple[Path, Path], tmp_path: Path, capsys
         assert (out_dir / name).stat().st_size > 0, name
     html = (out_dir / "report.html").read_text()
     assert "High-voltage cautions" in html and "a.toml with filter.0.c=100u" in html
+    # The shipped example says it is one (example = true): the report says so too, from that key alone.
+    assert "Invented examples" in (out_dir / "report.md").read_text()
+    for p in (a, b):
+        p.write_text(p.read_text().replace("example = true", "example = false"))
+    code, _, err = call(["compare", str(a), str(b), "--no-check", "--report", str(tmp_path / "side2")], capsys)
+    assert code == 0, err
+    assert "Invented examples" not in (tmp_path / "side2" / "report.md").read_text()  # though titled "Invented"
     assert json.loads((out_dir / "compare.json").read_text())["designs"][1]["label"] == "a.toml with filter.0.c=100u"
 
 

@@ -188,7 +188,7 @@ def build_report(comparison: Any) -> Document:
     doc = Document(f"Side by side: {n} designs", subtitle="Comparison by simkit: each design simulated as simkit run "
                                                           "does" + (", and checked as simkit check does" if
                                                                     comparison.checked else ""))
-    if any("invented" in (e.design.title + e.design.note).lower() for e in comparison.entries):
+    if any(e.design.example for e in comparison.entries):  # as the design file says (example = true), not its words
         doc.note("**Invented examples** are among these designs: made up for demonstration; their part values are "
                  "plausible, not taken from a real build or measured.")
     doc.heading("Designs")

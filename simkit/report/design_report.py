@@ -86,7 +86,7 @@ PART_GROUPS: tuple[tuple[str, tuple[str, ...]], ...] = (
 
 def is_invented(result: RunResult) -> bool:
     """True when the design file says it is an invented example (``example = true``), never from its words."""
-    return bool(getattr(result.design, "example", False))
+    return result.design.example
 
 
 def report_files() -> list[str]:
