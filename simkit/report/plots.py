@@ -18,8 +18,8 @@ Each figure comes as PNG (for documents and screens) and SVG (for print), byte-f
 repeatable: no dates or software versions, a fixed SVG hash salt.
 
 The helpers :func:`new_figure`, :func:`style_axes`, :func:`legend_outside`,
-:func:`level_limits`, :func:`figure_bytes`, :func:`line_plot` and :func:`histogram_plot` are
-for every report; the ``*_figure`` functions draw one design's waveforms.
+:func:`level_limits`, :func:`figure_bytes` and :func:`draw_histogram` are for every report;
+the ``*_figure`` functions draw one design's waveforms.
 """
 
 from __future__ import annotations
@@ -29,7 +29,6 @@ import itertools
 import math
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
-from dataclasses import dataclass
 from functools import cache
 from typing import TYPE_CHECKING, Any
 
@@ -53,8 +52,6 @@ GRID = "#e1e6ec"
 RAW = "#9fb2c8"
 SHADE = "#eef1f6"
 
-#: Kept for callers of the old single-figure plot.
-COLOURS = {"out": PALETTE[0], "rect": "#6f8fbf", "diodes": PALETTE[1:7], "start": "#3c4650"}
 
 #: The least height of a level plot's y-axis, as a share of the largest value's size: a change
 #: of 0.05 % then fills a hundredth of the axis, a change of 5 % all of it (our house style).
@@ -301,49 +298,6 @@ def figure_bytes(fig: Any, tight: bool = False) -> tuple[bytes, bytes]:
         return png, save_figure(fig, "svg", tight)
     finally:
         plt.close(fig)
-
-
-@dataclass(frozen=True)
-class Series:
-    """One line of a :func:`line_plot`: label, x and y values (SI), optional marker style."""
-
-    label: str
-    x: Sequence[float] | np.ndarray
-    y: Sequence[float] | np.ndarray
-    marker: str = "o"
-
-
-def line_plot(series: Sequence[Series], title: str, xlabel: str, xunit: str, ylabel: str, yunit: str,
-              logx: bool = False, height: float = 3.4, level: bool = True) -> tuple[bytes, bytes]:
-    """One axes of lines with markers (e.g. a figure against a swept value): PNG and SVG bytes.
-
-    ``level``: the y-axis is at least :data:`MIN_SPAN` of the values' size tall and the change
-    is printed on the plot.
-    """
-    with house_style():
-        fig, (ax,) = new_figure(1, height)
-        for k, s in enumerate(series):
-            ax.plot(np.asarray(s.x, dtype=float), np.asarray(s.y, dtype=float), marker=s.marker, ms=4,
-                    color=PALETTE[k % len(PALETTE)], label=s.label)
-        style_axes(ax, title, xlabel, xunit, ylabel, yunit, logx)
-        if level and series:
-            ys = np.concatenate([np.asarray(s.y, dtype=float) for s in series])
-            lo, hi = level_limits(ax, ys, headroom=0.25)
-            if math.isfinite(lo):
-                note(ax, change_text(lo, hi, yunit))
-        if len(series) > 1 or (series and series[0].label):
-            legend_outside(ax)
-        return figure_bytes(fig)
-
-
-def histogram_plot(values: Sequence[float] | np.ndarray, title: str, xlabel: str, xunit: str,
-                   bins: int = 20, marks: Sequence[tuple[str, float]] = (), height: float = 3.4) -> tuple[bytes, bytes]:
-    """A histogram of one figure over many runs, with labelled vertical marks (nominal, limits)."""
-    with house_style():
-        fig, (ax,) = new_figure(1, height)
-        draw_histogram(ax, np.asarray(values, dtype=float), bins, marks, xlabel, xunit)
-        ax.set_title(title)
-        return figure_bytes(fig)
 
 
 def draw_histogram(ax: Any, values: np.ndarray, bins: int, marks: Sequence[tuple[str, float]], xlabel: str,
