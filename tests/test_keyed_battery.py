@@ -259,6 +259,11 @@ def test_battery_corners_by_chemistry(chemistry: str, voltage: float, cells: int
     assert b.cells == cells
     assert b.low == pytest.approx(low, rel=1e-12) and b.high == pytest.approx(high, rel=1e-12)
     assert b.at("low").voltage == pytest.approx(low, rel=1e-12) and b.at("nominal") is b
+    # A corner is the same battery: its cells and corners stay (12.6 V lead-acid at 14.4 V is still 6 cells,
+    # not 7 worked out from 14.4 V).
+    for corner in ("low", "high"):
+        c = b.at(corner)
+        assert (c.cells, c.low, c.high) == (b.cells, b.low, b.high), corner
     given = battery(voltage=voltage, chemistry=chemistry, low_given=10.0, high_given=15.0, cells_given=5)
     assert (given.low, given.high, given.cells) == (10.0, 15.0, 5)
 

@@ -567,10 +567,12 @@ class Battery:
         return self.rated_hours_given if self.rated_hours_given is not None else self.kind.rated_hours
 
     def at(self, corner: str) -> Battery:
-        """This battery at a voltage corner: "low", "high" or "nominal"."""
+        """This battery at a voltage corner: "low", "high" or "nominal".  The same battery: its cells and
+        corners stay those of its nominal voltage (they would otherwise be worked out again from the corner's)."""
         if corner == "nominal":
             return self
-        return dataclasses.replace(self, voltage=self.low if corner == "low" else self.high)
+        return dataclasses.replace(self, voltage=self.low if corner == "low" else self.high, cells_given=self.cells,
+                                   low_given=self.low, high_given=self.high)
 
     def runtime_h(self, current: float | np.ndarray, time: np.ndarray | None = None) -> float:
         """Hours until the usable share of the capacity is used, at a current (A) or a current over ``time``
