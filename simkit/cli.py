@@ -16,6 +16,7 @@ import click
 from simkit import __version__
 from simkit.design.model import TOPOLOGIES
 from simkit.errors import SimkitError, UsageError, shown
+from simkit.stock import SERIES_NAMES
 
 SET_HELP = "Override one design value, e.g. --set filter.0.c=220u (repeatable)."
 
@@ -453,7 +454,7 @@ def spread(design: str, runs: int, seed: int, out_dir: str | None, check: bool, 
               help='What the figure must meet: "ripple_pp_v<=2", "vout_dc_v>=300" or "vout_dc_v=320".')
 @click.option("--set", "overrides", multiple=True, metavar="PATH=VALUE", help=SET_HELP)
 @click.option("--json", "as_json", is_flag=True, help="Print exactly one JSON document on stdout.")
-@click.option("--stock", "stock_series", type=click.Choice(["E3", "E6", "E12", "E24"], case_sensitive=False),
+@click.option("--stock", "stock_series", type=click.Choice(SERIES_NAMES, case_sensitive=False),
               help="Also give the stock value of this E series (IEC 60063) that meets the target, and its "
               "neighbour that misses it.")
 def size(design: str, vary: str, target: str, overrides: tuple[str, ...], as_json: bool,

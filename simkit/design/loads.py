@@ -162,11 +162,6 @@ class KeyedLoad(LoadBase):
             raise rd.fail(f"{path}.rise", "rise and fall are longer than the key-down or key-up time")
 
     @property
-    def keying(self) -> KeyedLoad:
-        """The keying pattern (this object: rate, duty, morse, wpm, rise, fall)."""
-        return self
-
-    @property
     def key_duty_share(self) -> float:
         """The duty as given (50 % by default), rate keying."""
         return 0.5 if self.duty is None else self.duty

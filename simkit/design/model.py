@@ -51,7 +51,6 @@ __all__ = [
     "TubeLoad", "TubeRatings", "VacuumDiode", "Zener",
 ]
 
-Topology = Literal["half-wave", "centre-tap", "bridge", "doubler", "cascade"]
 TOPOLOGIES: tuple[str, ...] = ("half-wave", "centre-tap", "bridge", "doubler", "cascade")
 #: Capacitors below this are refused, F: smaller than the wiring's own capacitance.
 MIN_CAPACITANCE = 10e-12
@@ -385,10 +384,6 @@ class Design:
     library: str = key("library", "str", "a parts file of your own (TOML, path relative to the design file): diodes "
                        'by name, and ratings for capacitors, chokes and resistors used with part = "NAME"', "")
     origin: str = field(default="<design>", compare=False)  # file the design came from, for messages
-
-    @property
-    def output_is_series_element(self) -> bool:
-        return bool(self.filters) and self.filters[-1].kind in ("l", "r")
 
     @property
     def keyed(self) -> tuple[KeyedLoad, ...]:

@@ -10,7 +10,6 @@ derived here, beside the keys it comes from.
 from __future__ import annotations
 
 import dataclasses
-import itertools
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -218,11 +217,6 @@ class TransformerSource(_Periodic):
         return (self.secondary_resistance or 0.0) + n * n * (self.primary_resistance or 0.0)
 
     @property
-    def secondary_va(self) -> float:
-        """The high-voltage winding's nameplate VA (rated voltage x rated current), VA."""
-        return self.secondary_vrms * self.rated_current
-
-    @property
     def regulation_share(self) -> float:
         """No-load rise over full-load voltage of the high-voltage winding; heater windings share it."""
         return self.open_circuit_vrms / self.secondary_vrms - 1.0
@@ -391,25 +385,6 @@ class InverterSource(_Periodic):
     def edge_time(self) -> float:
         return self.edge_time_given if self.edge_time_given is not None else self.period / 500
 
-
-    def input_power(self, p_out: float) -> float:
-        """Battery power for an output power, W (the loss model of the design file)."""
-        p = max(p_out, 0.0)
-        if self.efficiency_table:
-            frac = p / self.rated_power
-            pts = self.efficiency_table
-            if frac <= pts[0][0]:
-                eff = pts[0][1]
-            elif frac >= pts[-1][0]:
-                eff = pts[-1][1]
-            else:
-                eff = pts[-1][1]
-                for (x0, y0), (x1, y1) in itertools.pairwise(pts):
-                    if x0 <= frac <= x1:
-                        eff = y0 + (y1 - y0) * (frac - x0) / (x1 - x0)
-                        break
-            return max(self.idle_power, p / eff)
-        return self.idle_power + p + self.loss_k * p * p
 
     @property
     def loss_k(self) -> float:

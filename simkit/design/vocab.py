@@ -21,7 +21,7 @@ import dataclasses
 import difflib
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any, ClassVar, Protocol
+from typing import Any, ClassVar
 
 from simkit.errors import DesignError
 from simkit.units import UnitError, parse_percent, parse_value
@@ -99,18 +99,6 @@ def keys(cls: type) -> dict[str, tuple[str, Key]]:
     return out
 
 
-def field_key(cls: type, attr: str) -> Key:
-    """The Key of one field."""
-    for f in dataclasses.fields(cls):
-        if f.name == attr:
-            return f.metadata["key"]
-    raise KeyError(attr)
-
-
-class Kind(Protocol):
-    """A model class that is one kind of a tagged union (a source, a load, an inline diode)."""
-
-    kind: ClassVar[str]
 
 
 def _kind(v: Any) -> str:
@@ -375,13 +363,6 @@ def read_kind(rd: Reader, kinds: Sequence[type], table: Mapping[str, Any], path:
             raise rd.fail(f"{path}.{name}", foreign(name, cls, owners[0] if len(owners) == 1 else None))
     return _build(rd, cls, table, path, extra)
 
-
-def walk(cls: type) -> Iterator[tuple[str, Key]]:
-    """(field name, Key) of every keyed field of a class."""
-    for f in dataclasses.fields(cls):
-        k = f.metadata.get("key")
-        if k is not None:
-            yield f.name, k
 
 
 def key_at(root: type, path: str) -> Key | None:
