@@ -278,6 +278,13 @@ def test_battery_corner_keys_are_checked() -> None:
     assert exc.value.key == "battery.chemistry"
 
 
+def test_a_speed_without_morse_text_is_refused_not_ignored() -> None:
+    with pytest.raises(DesignError) as exc:
+        station(STATION.replace('morse = "TEST"\nwpm = 25', 'rate = "5"\nduty = "40%"\nwpm = 25'))
+    assert exc.value.key == "load.wpm" and "morse" in str(exc.value)
+    assert station(STATION.replace('morse = "TEST"\nwpm = 25', 'rate = "5"\nduty = "40%"')).loads[0].rate == 5.0
+
+
 @pytest.mark.ngspice
 def test_run_with_the_battery_low(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     # run --battery low: the battery at 11.5 V (six lead-acid cells, supply-8), its terminal V = Vb - Rb I at

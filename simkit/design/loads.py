@@ -142,6 +142,7 @@ class KeyedLoad(LoadBase):
                 raise rd.fail(f"{path}.morse", problem)
             rd.need(t, "wpm", path, "the Morse speed in words per minute, e.g. wpm = 20")
         else:
+            rd.refuse(t, ("wpm",), path, "wpm is the speed of morse text; without morse, give rate and duty")
             rd.need(t, "rate", path, "the keying rate in Hz (with duty), or morse text and wpm")
 
     def rules(self, rd: Reader, t: Mapping[str, Any], path: str) -> None:
