@@ -89,10 +89,10 @@ DIODE_SNUBBER = "SD"
 SOURCE_SNUBBER = "SS"
 
 
-def diode_model_line(d: DiodeModel, dynamics: bool = False) -> str:
-    tt, cjo = diode_dynamics(d) if dynamics else (d.tt, d.cjo)
-    params = [f"is={spice(d.is_)}", f"n={spice(d.n)}", f"rs={spice(d.rs)}", f"tt={spice(tt)}",
-              f"cjo={spice(cjo)}"]
+def diode_model_line(d: DiodeModel) -> str:
+    """The ``.model`` line of the rectifier diode (with whatever TT and CJO the model carries)."""
+    params = [f"is={spice(d.is_)}", f"n={spice(d.n)}", f"rs={spice(d.rs)}", f"tt={spice(d.tt)}",
+              f"cjo={spice(d.cjo)}"]
     if d.bv is not None:
         params.append(f"bv={spice(d.bv)}")
     return f".model {DIODE_MODEL} D({' '.join(params)})"
