@@ -34,7 +34,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from simkit.analysis.runs import Run, end_nodes, run_span, transient
+from simkit.analysis.runs import SAFE_OPTIONS, Run, end_nodes, run_span, transient
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine
 from simkit.errors import SimulationError
@@ -131,12 +131,19 @@ def high_frequency(engine: Engine, design: Design, steady: Run, steady_circuit: 
     ics.update(end_nodes(steady_circuit, steady.waves))
     steps = max(math.ceil(T / tmax - 1e-9), 1)
     method = "trap" if design.source.inductance > 0 else "gear"
-    # With nothing to ring, the engine's safer options (Gear, reltol 1e-3, gmin, rshunt) take the hard
-    # commutation an inverter's edge gives; with inductance the trapezoid rule at the design's reltol.
-    tran = transient(design, circuit, HF_PERIODS * T, steps, safe=method == "gear")
-    deck = render(circuit, tran, ics, saved(circuit))
-    try:
-        run = Run(deck, HF_PERIODS * T, engine.run(deck, HF_PERIODS * T), ics, steps=steps)
-    except SimulationError:  # once more with the engine's safer options (and its message when that fails)
+    # With inductance the trapezoid rule at the design's reltol (and, should it fail, the one retry with the
+    # engine's safer options); with nothing to ring those safer options (Gear, reltol 1e-3, gmin, rshunt)
+    # at once: they take the hard commutation an inverter's edge gives.  A failed run is not run again as it was.
+    if method == "trap":
         run = run_span(engine, design, circuit, HF_PERIODS * T, ics, steps, meas=saved(circuit))
+    else:
+        deck = render(circuit, transient(design, circuit, HF_PERIODS * T, steps, safe=True), ics, saved(circuit))
+        try:
+            run = Run(deck, HF_PERIODS * T, engine.run(deck, HF_PERIODS * T), ics, steps=steps)
+        except SimulationError as failed:
+            raise SimulationError(
+                f"ngspice could not complete the high-frequency run of {design.origin} (with its safer options: "
+                f"{', '.join(SAFE_OPTIONS)}, method=gear)", deck=failed.deck, log=failed.log,
+                hint="give the winding a series resistance (source.resistance) and the parts their esr and dcr, "
+                "or leave the high-frequency analysis out (simulation.hash = false)") from None
     return HighFreqRun(run, circuit, ((HF_PERIODS - 1) * T, HF_PERIODS * T), T / steps, f_ring, method)
