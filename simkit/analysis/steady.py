@@ -345,6 +345,7 @@ def steady_state(engine: Engine, design: Design, circuit: Circuit, vscale: float
         # time stepping; the better of the two answers is kept.
         x2 = space.vec(end_state(circuit, final.waves))
         again = _Newton(shooter, sim.steps_per_period, tol, max_time, None, steps=final.steps)
+        again.verified = newton.verified  # the step the first search verified holds for this one too
         if again.solve(x2) and again.run is not None:
             final2, jac2 = again.run, again.jac
         else:
@@ -354,7 +355,7 @@ def steady_state(engine: Engine, design: Design, circuit: Circuit, vscale: float
             final2, jac2 = shooter.period(x3, steps3, MEASURE_PERIODS)[1], None
         checks2 = verify(design, circuit, final2, space, jac2, tol)
         if sum(not c.ok for c in checks2) <= sum(not c.ok for c in checks):
-            final, checks, newton.jac = final2, checks2, jac2
+            final, checks, newton.jac, newton.verified = final2, checks2, jac2, again.verified
             method = "newton, checked twice" if jac2 is not None else "newton and time stepping"
     failed = [c for c in checks if not c.ok]
     for c in failed:
