@@ -7,7 +7,6 @@ import json
 import math
 import os
 import sys
-from importlib import resources
 from pathlib import Path
 from typing import Any
 
@@ -529,10 +528,6 @@ def watch(design: str, overrides: tuple[str, ...], port: int, out_dir: str | Non
 
     serve(design, overrides, port=port, out=out_dir, force=force, echo=lambda t: click.echo(t, err=True),
           announce=click.echo)
-
-
-def examples_dir() -> Path:
-    return Path(str(resources.files("simkit") / "examples"))
 
 
 def _clipped(text: str, limit: int = 600) -> str:

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -52,7 +52,6 @@ class Comparison:
 
     entries: list[Compared]
     checked: bool = True
-    notes: list[str] = field(default_factory=list)
 
     @property
     def figure_names(self) -> list[str]:
