@@ -69,7 +69,8 @@ def _numeric(v: Any) -> float | None:
     return None
 
 
-def _value(path: str, v: Any) -> str:
+def value_text(path: str, v: Any) -> str:
+    """A varied value with its unit (``22 µF``); anything not a number as it is."""
     x = _numeric(v)
     return eng(x, unit_of_path(path)) if x is not None else str(v)
 
@@ -110,7 +111,7 @@ def sweep_figure_bytes(entries: Sequence[Mapping[str, Any]], specs: Sequence[Var
                 ys_all += ys
                 if ys:
                     changes.append((min(ys), max(ys)))
-                label = ", ".join(_value(s.path, v) for s, v in zip(others, key, strict=True)) or None
+                label = ", ".join(value_text(s.path, v) for s, v in zip(others, key, strict=True)) or None
                 ax.plot([p[0] for p in pts], [p[1] for p in pts], marker="o", ms=3.5, lw=1.4,
                         color=plots.PALETTE[k % len(plots.PALETTE)], label=label)
             ax.set_title(f"{meaning[:1].upper()}{meaning[1:]} ({figure})")

@@ -12,9 +12,9 @@ from typing import Any
 
 from simkit.figures import FIGURES
 from simkit.report.outputs import OutputDir
+from simkit.sweep.plot import value_text
 from simkit.sweep.specs import VarySpec
 from simkit.sweep.table import one_line
-from simkit.units import eng
 
 #: Figures shown in the report's tables and, unless --plot chose others, its plot.
 KEY_FIGURES = ("vout_dc_v", "ripple_pp_v", "diode_peak_a", "surge_peak_a", "cap_peak_v")
@@ -39,14 +39,6 @@ def _show(key: str, v: Any) -> str:
     if v is None or v == "":
         return ""
     return show(key, v) if isinstance(v, float) else str(v)
-
-
-def _value(path: str, v: Any) -> str:
-    from simkit.sweep.plot import unit_of_path
-
-    if isinstance(v, float):
-        return eng(v, unit_of_path(path))
-    return str(v)
 
 
 def _design_text(design_file: str | Path) -> str | None:
@@ -101,7 +93,7 @@ def write_sweep_report(out: OutputDir, entries: Sequence[Mapping[str, Any]], spe
     doc.heading("What was varied")
     rows = []
     for s in specs:
-        vals = [_value(s.path, v) for v in _si(s.values)]
+        vals = [value_text(s.path, v) for v in _si(s.values)]
         shown = ", ".join(vals if len(vals) <= 12 else [*vals[:6], "...", *vals[-3:]])
         rows.append([s.path, s.text, {"list": "list", "linear": "equal steps", "log": "equal ratios"}[s.kind],
                      str(len(vals)), shown])
@@ -120,7 +112,7 @@ def write_sweep_report(out: OutputDir, entries: Sequence[Mapping[str, Any]], spe
     for e in list(entries)[:MAX_ROWS]:
         values = e.get("values") or {}
         metrics = e.get("metrics") or {}
-        table_rows.append([str(e["point"]), *(_value(p, values.get(p)) for p in inputs),
+        table_rows.append([str(e["point"]), *(value_text(p, values.get(p)) for p in inputs),
                            *(_show(k, metrics.get(k)) for k in KEY_FIGURES),
                            *([str(e.get("check") or "")] if has_check else []), one_line(e.get("error"), 80)])
     if len(entries) > MAX_ROWS:
@@ -165,7 +157,7 @@ def write_spread_report(out: OutputDir, entries: Sequence[Mapping[str, Any]], su
         doc.note(note, kind="caution")
     doc.heading("What was drawn")
     doc.table(["key", "nominal", "tolerance", "from"],
-              [[t["path"], _value(t["path"], t["nominal"]), f"±{t['tolerance'] * 100:g} %", t["from"]]
+              [[t["path"], value_text(t["path"], t["nominal"]), f"±{t['tolerance'] * 100:g} %", t["from"]]
                for t in header["tolerances"]], align="lrrl")
     doc.heading("Figures over the runs")
     figs = summary.get("figures", {})
