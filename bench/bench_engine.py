@@ -222,7 +222,6 @@ def startup(work: Path, ngspice: str, simkit: str, repeat: int) -> dict[str, Any
         t0 = time.perf_counter()
         subprocess.run([ngspice, "-b", str(deck)], check=True, capture_output=True, cwd=work)
         deck_t.append(time.perf_counter() - t0)
-        t0 = time.perf_counter()
     t0 = time.perf_counter()
     subprocess.run([sys.executable, "-c", "import simkit.cli"], check=True)
     import_s = time.perf_counter() - t0

@@ -19,10 +19,11 @@ Run:  python bench/bench_hash.py [--repeat 3] [DESIGN.toml ...]
 from __future__ import annotations
 
 import argparse
-import os
 import tempfile
 import time
 from pathlib import Path
+
+from _common import loadavg  # bench/ is on the path: the scripts run as files
 
 from simkit.design.loader import load_design
 from simkit.engine.ngspice import get_engine
@@ -69,22 +70,27 @@ def main() -> None:
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("designs", nargs="*")
     args = ap.parse_args()
-    paths = [Path(p) for p in args.designs] or sorted(EXAMPLES.glob("*.toml"))
-    tmp = Path(tempfile.mkdtemp(prefix="simkit-bench-hash-"))
-    if not args.designs:
-        for k, (name, diode) in enumerate(INVENTED.items()):
-            p = tmp / f"invented{k}.toml"
-            p.write_text(TEMPLATE.format(name=name, diode=diode))
-            paths.append(p)
+    with tempfile.TemporaryDirectory(prefix="simkit-bench-hash-") as tmp:
+        paths = [Path(p) for p in args.designs] or sorted(EXAMPLES.glob("*.toml"))
+        if not args.designs:
+            for k, (name, diode) in enumerate(INVENTED.items()):
+                p = Path(tmp) / f"invented{k}.toml"
+                p.write_text(TEMPLATE.format(name=name, diode=diode))
+                paths.append(p)
+        measure(paths, args.repeat)
+
+
+def measure(paths: list[Path], repeat: int) -> None:
+    """Time each design's run without and with the high-frequency analysis, and the hum figures alone."""
     get_engine()
     simulate(load_design(str(paths[0]), ()), hash=False)  # warm up
-    print(f"load average {os.getloadavg()[0]:.2f}; best of {args.repeat}")
+    print(f"load average {loadavg()}; best of {repeat}")
     print(f"{'design':58s} {'default':>9s} {'hum':>8s} {'with hash':>10s} {'hf points':>10s}")
     for p in paths:
         d = load_design(str(p), ())
-        t_plain, r = best(lambda d=d: simulate(d, hash=False), args.repeat)
-        t_hum, _ = best(lambda r=r: attach_hum(r), args.repeat * 10)
-        t_hash, rh = best(lambda d=d: simulate(d, hash=True), args.repeat)
+        t_plain, r = best(lambda d=d: simulate(d, hash=False), repeat)
+        t_hum, _ = best(lambda r=r: attach_hum(r), repeat * 10)
+        t_hash, rh = best(lambda d=d: simulate(d, hash=True), repeat)
         pts = len(rh.hash.hf.run.waves.time) if rh.hash is not None else 0
         print(f"{d.title[:58]:58s} {t_plain:8.3f}s {1e3 * t_hum:6.2f}ms {t_hash:9.3f}s {pts:10d}")
 

@@ -198,7 +198,8 @@ def settle_point(waves: Waveforms, circuit: Circuit, tol: float) -> float:
     return k * circuit.period
 
 
-def rel(a: float, b: float) -> float:
+def signed_rel(a: float, b: float) -> float:
+    """(a - b) relative to |b|, with its sign (bench._common.rel is the size only)."""
     return (a - b) / abs(b) if b else math.inf
 
 
@@ -340,8 +341,8 @@ def bench_design(case: Case, engine: Engine, ngspice: str, simkit_exe: str | Non
         "vout_drift_per_period": drift,
         "ripple_change_last_windows": ripple_change,
         "settled": drift < tol and ripple_change < RIPPLE_SETTLED,
-        "rel_diff_vout_dc": rel(result.metrics["vout_dc_v"], v_last),
-        "rel_diff_ripple_pp": rel(result.metrics["ripple_pp_v"], p_last),
+        "rel_diff_vout_dc": signed_rel(result.metrics["vout_dc_v"], v_last),
+        "rel_diff_ripple_pp": signed_rel(result.metrics["ripple_pp_v"], p_last),
         "span_needed_s": needed,
         "speedup_simkit": speedup,
         "speedup_oracle_naive_est": med(naive_b) * needed / NAIVE_SPAN / med(whole),
@@ -443,7 +444,7 @@ def report(cases: list[Case], meta: dict[str, Any]) -> str:
             c.name, f"{s['vout_dc_v']:.4f}", f"{n['vout_dc_v']:.4f}", f"{n['rel_diff_vout_dc']:+.1e}",
             f"{s['ripple_pp_v']:.5g}", f"{n['ripple_pp_v']:.5g}", f"{n['rel_diff_ripple_pp']:+.1e}",
             f"{n['vout_drift_per_period']:.1e}", "yes" if n["settled"] else "NO",
-            f"{rel(f['ngspice_b_vout_dc_v'], s['vout_dc_v']):+.0e}",
+            f"{signed_rel(f['ngspice_b_vout_dc_v'], s['vout_dc_v']):+.0e}",
         ])
     out.append(table(["design", "Vdc simkit", "Vdc naive", "rel", "ripple simkit", "ripple naive", "rel",
                       "naive drift/T", "settled", "deck -b Vdc"], rows))

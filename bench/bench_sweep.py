@@ -196,8 +196,8 @@ def naive_case(name: str, design: Path, report: Any, sweep_wall: float, engine: 
     results = naive_runs(designs, span, exe, sub)
     naive_total = sum(w for w, _ in results)
     pairs = list(zip(report.entries, results, strict=True))
-    dv = [bench_run.rel(e["metrics"]["vout_dc_v"], m["vout_dc_v"]) for e, (_, m) in pairs]
-    dr = [bench_run.rel(e["metrics"]["ripple_pp_v"], m["ripple_pp_v"]) for e, (_, m) in pairs]
+    dv = [bench_run.signed_rel(e["metrics"]["vout_dc_v"], m["vout_dc_v"]) for e, (_, m) in pairs]
+    dr = [bench_run.signed_rel(e["metrics"]["ripple_pp_v"], m["ripple_pp_v"]) for e, (_, m) in pairs]
     drift = [abs(m["vout_dc_v"] - m["vout_dc_v_prev"]) / abs(m["vout_dc_v"]) for _, m in results]
     n = len(designs)
     return {"name": name, "points": n, "sweep_s": sweep_wall, "per_point_s": sweep_wall / n,
