@@ -96,30 +96,35 @@ def _switch_on(design: Design) -> tuple[float, str]:
     return worst, (switch_on_words(design.source, worst) if inv is not None and inv.waveform != "sine" else "")
 
 
+def _tolerance(design: Design) -> float | None:
+    """The mains tolerance the corners use: none for an inverter (its battery has corners of its own)."""
+    return design.source.mains_tolerance if design.source.kind != "inverter" else None
+
+
+def _settle_limited(design: Design) -> Design:
+    """Corners need no load or line regulation runs, and a corner that never settles (a glow tube that keeps
+    striking and going out) is cut at 100 periods with a warning."""
+    limit = min(design.simulation.max_settle_time or math.inf, 100 / design.source.frequency)
+    return replace(design, simulation=replace(design.simulation, max_settle_time=limit))
+
+
 def design_corner_names(design: Design) -> dict[str, str]:
     """:func:`corner_names` for a design."""
-    tol = design.source.mains_tolerance if design.source.kind != "inverter" else None
-    return corner_names(tol, any(varies(ld) for ld in design.loads), bool(design.loads), _battery(design),
-                        _switch_on(design)[1])
+    return corner_names(_tolerance(design), any(varies(ld) for ld in design.loads), bool(design.loads),
+                        _battery(design), _switch_on(design)[1])
 
 
 def run_corners(design: Design, engine: Engine | None = None) -> Corners:
     eng = engine or get_engine()
-    tol = design.source.mains_tolerance if design.source.kind != "inverter" else None
-    hi, lo = (1 + tol, 1 - tol) if tol else (1.0, 1.0)
+    tol = _tolerance(design)
+    lo = 1 - tol if tol else 1.0
     names = design_corner_names(design)
     battery = _battery(design)
-    bat = design.battery
-    # Corners need no load or line regulation runs, and a corner that never settles (a glow tube that keeps
-    # striking and going out) is cut at 100 periods with a warning.
-    limit = min(design.simulation.max_settle_time or math.inf, 100 / design.source.frequency)
-    design = replace(design, simulation=replace(design.simulation, max_settle_time=limit))
-    crest = replace(design.simulation, switch_on_phase=_switch_on(design)[0])
-    high_d = design if battery is None else replace(design, battery=bat.at("high"))  # type: ignore[union-attr]
-    low_d = design if battery is None else replace(design, battery=bat.at("low"))  # type: ignore[union-attr]
+    heavy_d, hi = heavy_corner(design)  # the one heavy corner, here and for fixes simulated again
+    design = _settle_limited(design)
+    high_d = replace(heavy_d, loads=design.loads, simulation=design.simulation)
     light = replace(high_d, loads=tuple(lighten(ld) for ld in design.loads))
-    heavy_d = replace(high_d, loads=tuple(heavy(ld) for ld in design.loads), simulation=crest)
-    heavy_lo = replace(low_d, loads=tuple(heavy(ld) for ld in design.loads), simulation=crest)
+    heavy_lo = heavy_d if battery is None else replace(heavy_d, battery=design.battery.at("low"))  # type: ignore[union-attr]
     cold = replace(high_d, loads=())
     runs: list[tuple[str, Design, float]] = []
     if names["light"] != names["heavy"]:
@@ -143,9 +148,9 @@ def run_corners(design: Design, engine: Engine | None = None) -> Corners:
 def heavy_corner(design: Design) -> tuple[Design, float]:
     """The heavy corner's design (loads at their heaviest, switch-on at the crest) and its mains scale, for
     simulating a changed design at that corner again (a fix that must be checked by simulation)."""
-    tol = design.source.mains_tolerance if design.source.kind != "inverter" else None
-    limit = min(design.simulation.max_settle_time or math.inf, 100 / design.source.frequency)
-    sim = replace(design.simulation, max_settle_time=limit, switch_on_phase=_switch_on(design)[0])
+    tol = _tolerance(design)
+    design = _settle_limited(design)
+    sim = replace(design.simulation, switch_on_phase=_switch_on(design)[0])
     bat = design.battery
     high_d = design if _battery(design) is None else replace(design, battery=bat.at("high"))  # type: ignore[union-attr]
     return replace(high_d, loads=tuple(heavy(ld) for ld in design.loads), simulation=sim), (1 + tol if tol else 1.0)
