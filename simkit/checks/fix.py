@@ -26,6 +26,13 @@ from simkit.stock import compact
 
 #: How two assignments to one path combine: the larger, the smaller, or the one given first.
 KEEPS = ("max", "min", "first")
+#: Extra headroom a fix aims for beyond the marginal band: the fixed design's figures move a little.
+SLACK = 0.01
+
+
+def aim(marginal: float) -> float:
+    """The share of a limit a fixed value should reach at most: outside the marginal band, with slack."""
+    return (1.0 - marginal) / (1.0 + SLACK)
 
 
 @dataclass(frozen=True)

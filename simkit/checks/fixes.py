@@ -22,7 +22,7 @@ from dataclasses import dataclass, field, replace
 
 from simkit.analysis.discharge import discharge
 from simkit.checks.corners import Corners
-from simkit.checks.fix import Assignment, Fix
+from simkit.checks.fix import SLACK, Assignment, Fix, aim
 from simkit.checks.rules import Findings, Verdict
 from simkit.design.model import Bleeder, Design, DiodeModel, SeriesRegulator, ShuntRegulator
 from simkit.engine.ngspice import Engine, get_engine
@@ -33,8 +33,6 @@ from simkit.pipeline import CapacitorResult, RegulatorResult
 from simkit.stock import StockError, at_least, at_most, between, capacitor_volts, resistor_watts
 from simkit.units import eng
 
-#: Extra headroom a fix aims for beyond the marginal band: the fixed design's figures move a little.
-SLACK = 0.01
 #: A sharing resistor across each diode of a string: this many ohms per volt of the diode's VRRM, so it carries
 #: about 2 mA at the rating, a hundred times a small rectifier's leakage (common practice; docs/sources.md#diode-8).
 SHARING_OHMS_PER_VOLT = 500.0
@@ -78,7 +76,7 @@ class FixContext:
     @property
     def aim(self) -> float:
         """The share of a limit a fixed value should reach at most: outside the marginal band, with slack."""
-        return (1.0 - self.design.checks.marginal) / (1.0 + SLACK)
+        return aim(self.design.checks.marginal)
 
     def once(self, name: str, make: Callable[[], Fix | None]) -> Fix | None:
         """A fix several verdicts share, made once."""

@@ -18,7 +18,7 @@ from __future__ import annotations
 from dataclasses import replace
 
 from simkit.checks.corners import Corners
-from simkit.checks.fix import Assignment, Fix
+from simkit.checks.fix import Assignment, Fix, aim
 from simkit.checks.rules import Findings, make_verdict
 from simkit.design.model import Design, KeyedLoad
 from simkit.stock import StockError, at_least
@@ -44,7 +44,7 @@ def supply_verdicts(design: Design, corners: Corners, findings: Findings) -> Non
     def rated(path: str, need: float, what: str) -> Fix | None:
         """An inverter rated for ``need`` (watts) with the marginal band to spare, in the R10 series."""
         try:
-            w = at_least(need / (1 - pol.marginal - 0.01), "R10")
+            w = at_least(need / aim(pol.marginal), "R10")  # as every fix aims
         except StockError:
             return None  # propose() says that no stock part takes it
         return Fix((Assignment(path, w),), f"an inverter {what} {w:g} W or more")
