@@ -216,25 +216,51 @@ r = "100k"
 
 @pytest.mark.ngspice
 def test_sections_appear_when_their_data_exists(tmp_path: Path) -> None:
-    """A keyed load with a warm-up adds the keyed and start-up plots; verdicts in the run add their table."""
+    """A keyed load with a warm-up adds the keyed and start-up plots; verdicts passed as checks add their table."""
+    from dataclasses import replace
+
+    from simkit.checks import CheckReport, Verdict
+    from simkit.checks.corners import nominal_corners
+    from simkit.checks.rules import Findings
     from simkit.design.loader import load_design
     from simkit.pipeline import simulate
     from simkit.report.design_report import build_report
     from tests.conftest import write_design
 
     result = simulate(load_design(write_design(tmp_path, KEYED_WARMUP)))
-    result.extra["verdicts"] = [{"part": "D1", "rule": "piv_v", "value": 450.0, "limit": 1000.0, "margin": 0.55,
-                                 "verdict": "pass", "corner": "mains +10%"}]
-    doc = build_report(result)
+    # A policy limit: no part rating to show beside it.
+    verdict = Verdict("D1", "piv_v", 450.0, 1000.0, "V", "mains +10%", "pass", 0.55, limit_kind="policy")
+
+    def checks(v: Verdict) -> CheckReport:
+        return CheckReport(result.design, nominal_corners(result), Findings([v]), {})
+
+    doc = build_report(result, checks=checks(verdict))
     md = doc.markdown()
     for heading in ("## Verdicts", "### Keyed load", "### Start-up timeline"):
         assert f"\n{heading}\n" in md, heading
     assert "| D1 | piv\\_v | 450 V |   | 1 kV | +55 % | pass | mains +10% |" in md  # no rating given: blank
-    result.extra["verdicts"][0].update(verdict="fail", basis="VRRM 1000 V (datasheet)", rating=1250.0,
-                                       exceeds="derating")
-    md = build_report(result).markdown()
+    failed = replace(verdict, verdict="fail", basis="VRRM 1000 V (datasheet)", rating=1250.0, limit_kind="rating")
+    assert failed.exceeds == "derating"
+    md = build_report(result, checks=checks(failed)).markdown()
     assert "| 1.25 kV | 1 kV | +55 % | **FAIL** (above derating) | mains +10% | \\[1\\] |" in md
     assert "- \\[1\\] VRRM 1000 V (datasheet)" in md
     assert {"keyed.png", "keyed.svg", "start-up.png", "start-up.svg"} <= set(doc.files())
     assert "| BLOAD | " in md  # the keyed load in the parts table
     assert "**Invented example.**" not in md  # only designs that say so are labelled invented
+
+
+def test_verdict_rows_are_worded_as_simkit_check_words_them() -> None:
+    """The report's verdict cells come from the check text: a time that never comes, a ratio, a missing part."""
+    from simkit.checks import Verdict
+    from simkit.report.design_report import _verdict_row
+
+    never = Verdict("C1", "discharge below 60 V", float("inf"), 5.0, "s", "switch-off", "fail", -1.0,
+                    basis="safety", limit_kind="policy")
+    bases: list[str] = []
+    assert _verdict_row(never, bases) == ["C1", "discharge below 60 V", "never", "", "5 s", "never",
+                                          "**FAIL** (beyond limit)", "switch-off", "[1]"] and bases == ["safety"]
+    hot = Verdict("R1", "dissipation", 3.0, 0.5, "W", "heavy load", "fail", -1.0, rating=1.0)
+    assert _verdict_row(hot, bases)[2:7] == ["3 W", "1 W", "500 mW", "x6", "**FAIL** (above rating)"]
+    missing = Verdict("C1, C2", "balancing resistors", 2.0, 0.0, "missing", "the design", "fail", None,
+                      limit_kind="policy")
+    assert _verdict_row(missing, bases)[2:6] == ["2 missing", "", "none", ""]

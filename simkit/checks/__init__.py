@@ -82,8 +82,7 @@ class CheckReport:
                 "fails_above_rating": exceeds["rating"], "fails_above_derating": exceeds["derating"],
                 "fails_above_limit": exceeds["limit"],
                 "not_checked": [str(x) for x in self.findings.not_checked],
-                "not_checked_rules": [x.to_json() if isinstance(x, NotChecked) else {"why": str(x)}
-                                      for x in self.findings.not_checked],
+                "not_checked_rules": [x.to_json() for x in self.findings.not_checked],
                 "fix": [a.text() for a in self.fixes], "fuse": self.fuse, "corners": corners, "cautions": CAUTIONS}
 
     def to_json(self) -> dict[str, Any]:

@@ -105,7 +105,7 @@ class NotChecked:
 @dataclass
 class Findings:
     verdicts: list[Verdict] = field(default_factory=list)
-    not_checked: list[NotChecked | str] = field(default_factory=list)
+    not_checked: list[NotChecked] = field(default_factory=list)
 
 
 def judge(value: float, limit: float, marginal: float, minimum: bool = False) -> tuple[str, float | None]:

@@ -6,15 +6,19 @@ from __future__ import annotations
 
 import math
 import shlex
+from collections.abc import Iterable
 from typing import Any
 
-from simkit.checks import CheckReport, NotChecked, Verdict
+from simkit.checks import CheckReport, Verdict
 from simkit.report.text import text_table
 from simkit.safety import CAUTIONS
 from simkit.units import eng
 
 #: A failing value at least this many times its limit shows its ratio ("x3.2") instead of a margin.
 RATIO_FROM = 2.0
+
+#: What a failing verdict is beyond (:attr:`Verdict.exceeds`), in words.
+EXCEEDS_TEXT = {"rating": "above rating", "derating": "above derating", "limit": "beyond limit"}
 
 
 def value_text(v: float | None, unit: str) -> str:
@@ -30,18 +34,31 @@ def value_text(v: float | None, unit: str) -> str:
     return eng(v, {"ohm": "Ω", "VA": "VA"}.get(unit, unit))
 
 
+def ratio_text(v: Verdict) -> str:
+    """``x3.2`` for a failing value at least :data:`RATIO_FROM` times its (ceiling) limit, else ``""``."""
+    times = v.times_limit
+    if v.minimum or v.verdict != "fail" or times is None or not math.isfinite(times) or times < RATIO_FROM:
+        return ""
+    return f"x{times:.2g}" if times < 10 else f"x{times:.0f}"
+
+
 def margin_text(v: Verdict) -> str:
     """The margin as a builder reads it: ``+36 %``, ``-40 %``, or ``x3.2`` for a value several times its limit."""
     if v.unit == "missing" or v.margin is None:
         return ""
     if not math.isfinite(v.value):
         return "never" if v.unit == "s" else ""
-    times = v.times_limit
-    if not v.minimum and v.verdict == "fail" and times is not None and times >= RATIO_FROM:
-        return f"x{times:.2g}" if times < 10 else f"x{times:.0f}"
+    ratio = ratio_text(v)
+    if ratio:
+        return ratio
     if not math.isfinite(v.margin):
         return ""
     return f"{v.margin * 100:+.0f} %"
+
+
+def exceeds_text(v: Verdict) -> str:
+    """What a fail is beyond, in words (``above derating``); ``""`` when it is not a fail."""
+    return EXCEEDS_TEXT.get(v.exceeds, "")
 
 
 def verdict_text(v: Verdict) -> str:
@@ -50,11 +67,12 @@ def verdict_text(v: Verdict) -> str:
         return "pass"
     if v.verdict != "fail":
         return v.verdict.upper()
-    return {"rating": "FAIL: above rating", "derating": "FAIL: above derating", "limit": "FAIL: beyond limit"}.get(
-        v.exceeds, "FAIL")
+    over = exceeds_text(v)
+    return f"FAIL: {over}" if over else "FAIL"
 
 
-def _rating(v: Verdict) -> str:
+def rating_text(v: Verdict) -> str:
+    """The part's own rating; the limit when that is the rating itself; blank for a policy limit or a missing part."""
     if v.unit == "missing":
         return ""
     if v.rating is None:
@@ -62,7 +80,8 @@ def _rating(v: Verdict) -> str:
     return value_text(v.rating, v.unit)
 
 
-def _limit(v: Verdict) -> str:
+def limit_text(v: Verdict) -> str:
+    """The (derated) limit; ``none`` for a part the design lacks."""
     return "none" if v.unit == "missing" else value_text(v.limit, v.unit)
 
 
@@ -70,23 +89,20 @@ def report_text(rep: CheckReport, command: str = "") -> str:
     """The whole ``simkit check`` text.  ``command`` is how the design was checked, for the re-check line."""
     rows: list[tuple[str, ...]] = [("part", "rule", "value", "rating", "limit", "margin", "verdict", "corner")]
     for v in rep.verdicts:
-        rows.append((v.part, v.rule, value_text(v.value, v.unit), _rating(v), _limit(v), margin_text(v),
+        rows.append((v.part, v.rule, value_text(v.value, v.unit), rating_text(v), limit_text(v), margin_text(v),
                      verdict_text(v), v.corner))
     for x in rep.findings.not_checked:
-        if isinstance(x, NotChecked):
-            rows.append((x.part, x.rule, value_text(x.value, x.unit) if x.value is not None else "", "none", "",
-                         "", "not checked", x.corner))
+        rows.append((x.part, x.rule, value_text(x.value, x.unit) if x.value is not None else "", "none", "",
+                     "", "not checked", x.corner))
     lines = [f"{rep.design.title}", f"  design file: {rep.design.origin}", "", *text_table(rows)]
     s = rep.summary()
     lines.append("")
     lines.append(f"  {s['pass']} pass, {s['marginal']} marginal, {s['fail']} fail: {s['result'].upper()}"
                  + _fail_split(s))
-    loose = [x for x in rep.findings.not_checked if not isinstance(x, NotChecked)]
     if rep.findings.not_checked:
         n = len(rep.findings.not_checked)
         lines.append(f"  {n} rule{'s' if n != 1 else ''} not checked, for want of a rating (rows 'not checked'; "
                      "add the rating to check them)")
-    lines += [f"    - {x}" for x in loose]
     lines += fix_lines(rep, command)
     fz = rep.fuse
     lines.append(f"  suggested fuse: {eng(fz['rating_a'], 'A')} {fz['type']}, {fz['where']}: 1.5 x "
@@ -113,18 +129,25 @@ def _fail_split(s: dict[str, Any]) -> str:
     return " (" + ", ".join(parts) + ")"
 
 
-def fix_lines(rep: CheckReport, command: str = "") -> list[str]:
-    """What to change: each distinct fix once, with the verdicts it fixes, then every fix as one --set line."""
-    bad = [v for v in rep.verdicts if v.verdict != "pass" and v.fix is not None]
-    if not bad:
-        return []
+def fix_groups(verdicts: Iterable[Verdict]) -> list[tuple[list[str], str, tuple[str, ...]]]:
+    """Each distinct fix of the fail and marginal verdicts once, in order of first use: (the verdicts it fixes as
+    ``part rule``, its reason, its assignments as ``key=value``)."""
     groups: dict[tuple[tuple[str, ...], str], list[str]] = {}
-    for v in bad:
-        assert v.fix is not None
+    for v in verdicts:
+        if v.verdict == "pass" or v.fix is None:
+            continue
         key = (tuple(a.text() for a in v.fix.sets), v.fix.reason)
         groups.setdefault(key, []).append(f"{v.part} {v.rule}")
+    return [(which, reason, sets) for (sets, reason), which in groups.items()]
+
+
+def fix_lines(rep: CheckReport, command: str = "") -> list[str]:
+    """What to change: each distinct fix once, with the verdicts it fixes, then every fix as one --set line."""
+    groups = fix_groups(rep.verdicts)
+    if not groups:
+        return []
     out = ["", "  to fix (stock values; apply them all, then check again):"]
-    for (sets, reason), which in groups.items():
+    for which, reason, sets in groups:
         out.append(f"    {', '.join(which)}")
         out.append(f"      {reason}" + (f": {' '.join(sets)}" if sets else " (no design key to set)"))
     line = rep.fix_line

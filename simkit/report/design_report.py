@@ -11,9 +11,7 @@ carries its keyed run, ``start-up`` when the design has heater warm-ups or load 
 Sections that depend on other capabilities appear when their data is there:
 
 - verdicts: a :class:`simkit.checks.CheckReport` passed as ``checks`` (``simkit report``
-  and ``simkit demo`` run the checks), or ``result.extra["verdicts"]``, a list of dicts
-  with the keys of ``simkit check --json`` (part, rule, value, limit, margin, verdict,
-  corner, unit, basis);
+  and ``simkit demo`` run the checks), worded as ``simkit check`` prints them;
 - keyed behaviour: ``result.keyed`` (or ``result.extra["keyed"]``), a run with ``.waves``
   or ``.run.waves`` (engine Waveforms) of the keyed load over some key cycles;
 - stepped loads and warm-ups: ``design.has_timeline``, plotted from the switch-on run.
@@ -29,10 +27,11 @@ from simkit.design.vocab import value_rows
 from simkit.figures import FIGURES
 from simkit.report.document import Document
 from simkit.report.outputs import OutputDir
-from simkit.report.text import show, unit_of
+from simkit.report.text import show
 from simkit.units import eng
 
 if TYPE_CHECKING:
+    from simkit.checks import CheckReport, Verdict
     from simkit.pipeline import RunResult
 
 #: Picture file stems, in the order the report shows them.
@@ -100,7 +99,8 @@ def report_files() -> list[str]:
 
 
 def build_report(result: RunResult, design_text: str | None = None, source_name: str = "",
-                 overrides: tuple[str, ...] | list[str] = (), checks: Any = None, check_error: str = "") -> Document:
+                 overrides: tuple[str, ...] | list[str] = (), checks: CheckReport | None = None,
+                 check_error: str = "") -> Document:
     """The report of one run as a :class:`Document` (nothing written yet).
 
     Parameters
@@ -171,8 +171,7 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
         doc.heading(title, 3)
         doc.table(headers, rows, align=align)
 
-    verdicts = _verdicts(result, checks)
-    if verdicts:
+    if checks is not None and checks.verdicts:
         doc.heading("Verdicts")
         doc.paragraph("Each stress or safety rule checked against the part's rating at the corner where it binds "
                       "(as `simkit check` does): `pass`, `marginal` or `fail`; the margin is the headroom as a "
@@ -181,14 +180,13 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
                       "failure says whether the value is above the rating itself or only above the derating; a "
                       "value several times its limit shows the ratio (x3.2) instead of a margin.")
         bases: list[str] = []
-        rows = [_verdict_row(v, bases) for v in verdicts]
+        rows = [_verdict_row(v, bases) for v in checks.verdicts]
         doc.table(["part", "rule", "value", "rating", "limit", "margin", "verdict", "corner", "limit from"], rows,
                   align="llrrrrclc", markup=True)
         if bases:
             doc.paragraph("Where each limit comes from:")
             doc.bullets([f"[{k + 1}] {b}" for k, b in enumerate(bases)], markup=False)
-        if checks is not None:
-            _check_summary(doc, checks)
+        _check_summary(doc, checks)
     elif check_error:
         doc.note(f"The stress checks could not be completed: {check_error}", kind="caution")
 
@@ -247,12 +245,13 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
 
 
 def write_report(result: RunResult, out: OutputDir, design_text: str | None = None, source_name: str = "",
-                 overrides: tuple[str, ...] | list[str] = (), checks: Any = None, check_error: str = "") -> list[str]:
+                 overrides: tuple[str, ...] | list[str] = (), checks: CheckReport | None = None,
+                 check_error: str = "") -> list[str]:
     """Build and write the report of one run; returns the file names written."""
     return build_report(result, design_text, source_name, overrides, checks, check_error).write(out)
 
 
-def run_checks(design: Any) -> tuple[Any, str]:
+def run_checks(design: Any) -> tuple[CheckReport | None, str]:
     """The design's stress checks (``simkit check``), or None and why they could not run."""
     from simkit.checks import check_design
     from simkit.errors import SimkitError
@@ -441,53 +440,22 @@ def _steps_note(result: RunResult) -> str:
                                   ("cap_peak_warmup_v", "highest capacitor voltage before they draw")))
 
 
-def _verdicts(result: RunResult, checks: Any = None) -> list[dict[str, Any]]:
-    if checks is not None:
-        return [v.to_json() for v in checks.verdicts]
-    v = _extra(result, "verdicts")
-    return [x.to_json() if hasattr(x, "to_json") else dict(x) for x in v] if v else []
+def _verdict_row(v: Verdict, bases: list[str]) -> list[str]:
+    """One verdict as table cells (with markup), worded as ``simkit check`` words it; its limit's source is
+    numbered into ``bases``."""
+    from simkit.report import check_text as ct
 
-
-def _value(x: Any, unit: str, rule: str) -> str:
-    if not isinstance(x, (int, float)) or isinstance(x, bool):
-        return "–" if x is None else str(x)
-    if not math.isfinite(x):
-        return "never" if unit == "s" else "n/a"
-    if unit in ("A2s", "A²s"):
-        return f"{x:.4g} A²s"
-    if unit == "missing":
-        return f"{x:g}"
-    return eng(float(x), {"ohm": "Ω"}.get(unit, unit or _unit_from_rule(rule)))
-
-
-def _verdict_row(v: dict[str, Any], bases: list[str]) -> list[str]:
-    """One verdict as table cells (with markup); its limit's source is numbered into ``bases``."""
-    unit = str(v.get("unit") or "")
-    rule = str(v.get("rule", ""))
-    margin = v.get("margin")
-    m = f"{margin * 100:+.0f} %" if isinstance(margin, (int, float)) and math.isfinite(margin) else "–"
-    limit = "none given" if unit == "missing" else _value(v.get("limit"), unit, rule)
-    verdict = str(v.get("verdict", ""))
-    shown = verdict if verdict == "pass" else f"**{verdict.upper()}**"
-    over = {"rating": "above rating", "derating": "above derating", "limit": "beyond limit"}.get(
-        str(v.get("exceeds") or ""))
+    shown = v.verdict if v.verdict == "pass" else f"**{v.verdict.upper()}**"
+    over = ct.exceeds_text(v)
     if over:
         shown += f" ({over})"
-    times = v.get("times_limit")
-    if verdict == "fail" and isinstance(times, (int, float)) and times >= 2 and unit != "missing":
-        m = f"x{times:.2g}" if times < 10 else f"x{times:.0f}"
-    rating = v.get("rating")
-    if not isinstance(rating, (int, float)) and v.get("limit_kind") == "rating" and unit != "missing":
-        rating = v.get("limit")  # the limit is the part's rating itself
-    rating_cell = _value(rating, unit, rule) if isinstance(rating, (int, float)) else ""
-    basis = str(v.get("basis", "") or "")
     ref = ""
-    if basis:
-        if basis not in bases:
-            bases.append(basis)
-        ref = f"[{bases.index(basis) + 1}]"
-    return [_plain(str(v.get("part", ""))), _plain(rule), _value(v.get("value"), unit, rule), rating_cell, limit, m,
-            shown, _plain(str(v.get("corner", "") or "")), ref]
+    if v.basis:
+        if v.basis not in bases:
+            bases.append(v.basis)
+        ref = f"[{bases.index(v.basis) + 1}]"
+    return [_plain(v.part), _plain(v.rule), ct.value_text(v.value, v.unit), ct.rating_text(v), ct.limit_text(v),
+            ct.margin_text(v), shown, _plain(v.corner), ref]
 
 
 def _plain(text: str) -> str:
@@ -495,7 +463,7 @@ def _plain(text: str) -> str:
     return text.replace("`", "'").replace("**", "* *")
 
 
-def _check_summary(doc: Document, checks: Any) -> None:
+def _check_summary(doc: Document, checks: CheckReport) -> None:
     s = checks.summary()
     doc.paragraph(f"**{s['pass']} pass, {s['marginal']} marginal, {s['fail']} fail**: overall "
                   f"**{s['result']}**. Corners simulated: {'; '.join(str(c) for c in s.get('corners', []))}.")
@@ -510,26 +478,29 @@ def _check_summary(doc: Document, checks: Any) -> None:
                       f"{' at ' + fz['corner'] if fz.get('corner') else ''}.")
 
 
-def _fix_section(doc: Document, checks: Any) -> None:
-    """What to change, fix by fix, and every fix as one --set line."""
-    bad = [v for v in checks.verdicts if v.verdict != "pass" and getattr(v, "fix", None) is not None]
-    if not bad:
+def _fix_section(doc: Document, checks: CheckReport) -> None:
+    """What to change, fix by fix (grouped as ``simkit check`` groups them), and every fix as one --set line."""
+    from simkit.report.check_text import fix_groups
+
+    groups = fix_groups(checks.verdicts)
+    if not groups:
         return
-    groups: dict[str, list[str]] = {}
-    for v in bad:
-        sets = ", ".join(f"--set {a.text()}" for a in v.fix.sets)
-        key = v.fix.reason + (f"; set: {sets}" if sets else " (no design key to set)")
-        groups.setdefault(key, []).append(f"{v.part} {v.rule}")
+    items = []
+    for which, reason, sets in groups:
+        given = ", ".join(f"--set {a}" for a in sets)
+        items.append(f"{', '.join(which)}: {reason}" + (f"; set: {given}" if given else " (no design key to set)"))
     doc.paragraph("To fix (stock values; apply them all, then check again):")
-    doc.bullets([f"{', '.join(which)}: {reason}" for reason, which in groups.items()], markup=False)
-    line = getattr(checks, "fix_line", "")
+    doc.bullets(items, markup=False)
+    line = checks.fix_line
     if line:
         doc.paragraph("Every fix at once, as `simkit check` options:")
         doc.code(line, "sh")
 
 
-def _verdict_summary(checks: Any, check_error: str = "") -> str:
+def _verdict_summary(checks: CheckReport | None, check_error: str = "") -> str:
     """The Summary's first words: the overall verdict and the worst failures (or why there is none)."""
+    from simkit.report.check_text import ratio_text, value_text
+
     if checks is None:
         return f"**Verdict: not checked** ({check_error})." if check_error else ""
     s = checks.summary()
@@ -537,27 +508,22 @@ def _verdict_summary(checks: Any, check_error: str = "") -> str:
             f"{s['marginal']} marginal, {s['pass']} pass")
     if s.get("fails_above_rating"):
         head += f" ({s['fails_above_rating']} above the part's absolute rating)"
-    worst = checks.worst(3) if hasattr(checks, "worst") else []
+    worst = checks.worst(3)
     if worst:
         items = []
         for v in worst:
-            times = v.times_limit
+            ratio = ratio_text(v)
             if v.unit == "missing":
                 how = "none fitted"
             elif v.exceeds == "rating" and v.rating is not None:
-                how = f"rated {_value(v.rating, v.unit, v.rule)}"
-            elif times is not None and v.verdict == "fail" and not v.minimum and times >= 2:
-                how = f"x{times:.2g} its limit of {_value(v.limit, v.unit, v.rule)}"
+                how = f"rated {value_text(v.rating, v.unit)}"
+            elif ratio:
+                how = f"{ratio} its limit of {value_text(v.limit, v.unit)}"
             else:
-                how = f"limit {_value(v.limit, v.unit, v.rule)}"
-            items.append(f"{_plain(v.part)} {_plain(v.rule)} {_value(v.value, v.unit, v.rule)} ({how})")
+                how = f"limit {value_text(v.limit, v.unit)}"
+            items.append(f"{_plain(v.part)} {_plain(v.rule)} {value_text(v.value, v.unit)} ({how})")
         head += ". Worst: " + "; ".join(items)
     return head + "."
-
-
-def _unit_from_rule(rule: str) -> str:
-    """A unit from a figure-style rule name (``piv_v`` -> V), for verdicts that carry none."""
-    return unit_of(rule) or ""
 
 
 def default_out_dir(design_path: str) -> Path:
