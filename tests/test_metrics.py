@@ -160,6 +160,40 @@ def test_period_stats_of_a_rising_ramp() -> None:
     assert len(mx.period_stats(t, y, T)) == 3  # from the first sample
 
 
+def test_one_period_mean_of_a_sine_on_a_ramp_is_the_ramp_at_the_window_midpoint() -> None:
+    # y = D + k t + A sin(w t) (derived here): over any whole period the sine's mean is 0 and the ramp's is its
+    # value at the window's midpoint, so the mean centred on x is D + k x, the one starting at x D + k (x + T/2).
+    # The running integral is the trapezoidal rule (exact for the ramp, within its bound for the sine at each
+    # sample); between samples it is interpolated linearly, off by at most h^2/8 max|y'| at each window end.
+    d, k, a = 300.0, 40.0, 20.0
+    t = uneven(0.0, 5 * T, 8000, seed=9)
+    y = d + k * t + a * np.sin(W * t)
+    area = mx.running_integral(t, y)
+    assert area[0] == 0.0 and area[-1] == pytest.approx(np.trapezoid(y, t), rel=1e-13)
+    h = max_step(t)
+    bound = 2 * (trapezoid_bound(t, a * W * W) + h * h / 8 * (a * W + k)) / T
+    at = np.linspace(T / 2, 4.5 * T, 41)
+    assert np.max(np.abs(mx.one_period_mean(t, y, T, at) - (d + k * at))) <= bound
+    start = np.linspace(0.0, 4 * T, 41)
+    assert np.max(np.abs(mx.one_period_mean(t, y, T, start, centred=False) - (d + k * (start + T / 2)))) <= bound
+    # The same from a running integral kept apart (as a thinned trace keeps it), and a single time.
+    assert mx.integral_period_mean(t, area, T, 2 * T)[0] == mx.one_period_mean(t, y, T, 2 * T)[0]
+    # Where the period reaches past the samples there is no mean.
+    assert np.isnan(mx.one_period_mean(t, y, T, np.array([0.4 * T, 4.6 * T]))).all()
+    assert np.isnan(mx.one_period_mean(t, y, T, np.array([-0.1 * T, 4.1 * T]), centred=False)).all()
+
+
+def test_thin_indices_keep_the_slots_and_each_periods_extremes() -> None:
+    # 1000 even samples a period, 7 slots a period: a slot starts at sample ceil(1000 j / 7) of each period
+    # (143, 286, 429, 572, 715, 858).  A sine from phase 0 peaks at sample 250 and bottoms at 750 of every period;
+    # a rising ramp is lowest at a period's first sample and highest at its last (999) (derived here).
+    t = np.linspace(0.0, 3 * T, 3001)
+    kept = mx.thin_indices(t, T, 7, [np.sin(W * t), t.copy()])
+    per_period = [0, 143, 250, 286, 429, 572, 715, 750, 858, 999]
+    assert kept.tolist() == [p * 1000 + i for p in range(3) for i in per_period] + [3000]
+    assert mx.thin_indices(t[:3], T, 7, [t[:3]]).tolist() == [0, 1, 2]  # too short to thin
+
+
 # --- time_below: when a capacitor falls below the safe voltage for good -------------------------------
 
 

@@ -30,6 +30,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from simkit.analysis import metrics as mx
 from simkit.analysis.runs import Run, end_nodes, end_state, run_span
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine, Waveforms
@@ -100,11 +101,7 @@ class KeyedRun:
         """Mean of vector ``name`` over one source period centred on each time of ``at`` (absolute);
         NaN where that period reaches past the run."""
         T = period if period is not None else (self.circuit.period if self.circuit is not None else 0.0)
-        t, area = self.time, self.areas[name]
-        x = np.atleast_1d(np.asarray(at, dtype=float))
-        out = (np.interp(x + T / 2, t, area) - np.interp(x - T / 2, t, area)) / T
-        out[(x - T / 2 < t[0] - 1e-12) | (x + T / 2 > t[-1] + 1e-12)] = np.nan
-        return out
+        return mx.integral_period_mean(self.time, self.areas[name], T, at)
 
 
 def kept_vectors(circuit: Circuit) -> list[str]:
@@ -167,8 +164,7 @@ class _Trace:
             y = waves.vectors.get(n)
             if y is None:
                 continue
-            area = np.concatenate(([0.0], np.cumsum(np.diff(waves.time) * (y[1:] + y[:-1]) / 2)))
-            area += self.carry.get(n, 0.0)
+            area = mx.running_integral(waves.time, y) + self.carry.get(n, 0.0)
             self.carry[n] = float(area[-1])
             self.vectors.setdefault(n, []).append(y[keep])
             self.areas.setdefault(n, []).append(area[keep])
@@ -191,35 +187,15 @@ def thin(circuit: Circuit, waves: Waveforms, names: list[str]) -> np.ndarray:
     """Indices of the samples kept of a chunk: THIN_PER_PERIOD evenly spread a period, the first and
     last, and in every period where each named vector (and the regulator's dissipation and headroom)
     is highest and lowest."""
-    t = waves.time
-    n = len(t)
-    if n < 4:
-        return np.arange(n)
-    T = circuit.period
-    keep = np.zeros(n, dtype=bool)
-    keep[[0, n - 1]] = True
-    slot = np.floor((t - t[0]) / (T / THIN_PER_PERIOD) + 1e-9).astype(np.int64)
-    keep[np.flatnonzero(np.diff(slot)) + 1] = True
-    watched = [waves.vectors[m] for m in names if m in waves.vectors]
     vec = waves.vectors
+    watched = [vec[m] for m in names if m in vec]
     if "drn" in vec and circuit.regulator.get("pass_sense"):
         i = vec.get(f"{circuit.regulator['pass_sense'].lower()}#branch")
         if i is not None:
             watched.append((vec["drn"] - vec[circuit.output]) * i)
     if "raw" in vec and circuit.regulator:
         watched.append(vec["raw"] - vec[circuit.output])
-    per = np.floor((t - t[0]) / T + 1e-9).astype(np.int64)
-    bounds = np.flatnonzero(np.diff(per)) + 1
-    starts = np.concatenate(([0], bounds))
-    ends = np.concatenate((bounds, [n]))
-    for y in watched:
-        hi = np.maximum.reduceat(y, starts)
-        lo = np.minimum.reduceat(y, starts)
-        for a, b, h, low in zip(starts, ends, hi, lo, strict=True):
-            seg = y[a:b]
-            keep[a + int(np.argmax(seg == h))] = True
-            keep[a + int(np.argmax(seg == low))] = True
-    return np.flatnonzero(keep)
+    return mx.thin_indices(waves.time, circuit.period, THIN_PER_PERIOD, watched)
 
 
 def longest_key_down(drive: Drive, c0: float, c1: float) -> tuple[float, float] | None:

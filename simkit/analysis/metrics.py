@@ -7,6 +7,7 @@ with the window's ends interpolated exactly onto the period boundaries.
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable
 from dataclasses import dataclass
 
 import numpy as np
@@ -86,3 +87,55 @@ def period_stats(t: np.ndarray, y: np.ndarray, period: float, t_start: float | N
         b = a + period
         out.append(PeriodStats(mean(t, y, a, b), trough(t, y, a, b), peak(t, y, a, b)))
     return out
+
+
+def running_integral(t: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Trapezoid integral of y from the first sample to each sample (same length as t)."""
+    return np.concatenate(([0.0], np.cumsum(np.diff(t) * (y[1:] + y[:-1]) / 2)))
+
+
+def integral_period_mean(t: np.ndarray, area: np.ndarray, period: float, at: np.ndarray | float,
+                         centred: bool = True) -> np.ndarray:
+    """Mean over one period centred on each time of ``at`` (``centred=False``: the period starting there),
+    from ``area``, the running integral at the samples ``t``; NaN where that period reaches past ``t``.
+
+    Taking it from the running integral lets a thinned trace that kept the full trace's integral give the
+    full trace's mean.
+    """
+    x = np.atleast_1d(np.asarray(at, dtype=float))
+    lo, hi = (x - period / 2, x + period / 2) if centred else (x, x + period)
+    out = (np.interp(hi, t, area) - np.interp(lo, t, area)) / period
+    eps = max(1e-12, 1e-9 * period)  # rounding of at + period, not a period past the samples
+    out[(lo < t[0] - eps) | (hi > t[-1] + eps)] = np.nan
+    return out
+
+
+def one_period_mean(t: np.ndarray, y: np.ndarray, period: float, at: np.ndarray | float,
+                    centred: bool = True) -> np.ndarray:
+    """Mean of y over one period centred on (or, ``centred=False``, starting at) each time of ``at``
+    (trapezoid integral); NaN where that period reaches past the samples."""
+    return integral_period_mean(t, running_integral(t, y), period, at, centred)
+
+
+def thin_indices(t: np.ndarray, period: float, per_period: int, watched: Iterable[np.ndarray]) -> np.ndarray:
+    """Indices of the samples a thinned trace keeps: the first and last, the first of each of ``per_period``
+    even slots a period, and in every period where each watched vector is highest and lowest (the first
+    such sample), so every peak figure survives at a fraction of the memory."""
+    n = len(t)
+    if n < 4:
+        return np.arange(n)
+    keep = np.zeros(n, dtype=bool)
+    keep[[0, n - 1]] = True
+    slot = np.floor((t - t[0]) / (period / per_period) + 1e-9).astype(np.int64)
+    keep[np.flatnonzero(np.diff(slot)) + 1] = True
+    per = np.floor((t - t[0]) / period + 1e-9).astype(np.int64)
+    starts = np.concatenate(([0], np.flatnonzero(np.diff(per)) + 1))
+    # Each sample's period, numbered 0, 1, ... in order (``per`` may skip a number over a long step).
+    seg = np.cumsum(np.concatenate(([0], np.diff(per) != 0)))
+    lengths = np.diff(np.concatenate((starts, [n])))
+    for y in watched:
+        for extreme in (np.maximum.reduceat(y, starts), np.minimum.reduceat(y, starts)):
+            hit = np.flatnonzero(y == np.repeat(extreme, lengths))
+            # The first hit of each period: where the period number changes along the hits.
+            keep[hit[np.concatenate(([True], np.diff(seg[hit]) != 0))]] = True
+    return np.flatnonzero(keep)

@@ -190,28 +190,12 @@ def thin(circuit: Circuit, waves: Waveforms, period: float) -> Waveforms:
     the output, each capacitor's voltage, each diode's current and each inductor's current reach
     their highest and lowest: every peak figure of the start-up run survives, at a fraction of the memory.
     """
-    t = waves.time
-    n = len(t)
-    if n < 4:
+    if len(waves.time) < 4:
         return waves
-    keep = np.zeros(n, dtype=bool)
-    keep[[0, n - 1]] = True
-    dt = period / THIN_PER_PERIOD
-    slot = np.floor((t - t[0]) / dt + 1e-9).astype(np.int64)
-    keep[np.flatnonzero(np.diff(slot)) + 1] = True  # the first sample of every slot
     watched = [waves.v(circuit.output)]
     watched += [waves.v(c.plus) - waves.v(c.minus) for c in circuit.capacitors if c.is_part]
     watched += [waves.i(d.sense) for d in circuit.diodes]
     watched += [waves.i(i.name) for i in circuit.inductors]
     watched += [waves.i(w.name) for w in circuit.windings]
-    per = np.floor((t - t[0]) / period + 1e-9).astype(np.int64)
-    bounds = np.flatnonzero(np.diff(per)) + 1
-    starts = np.concatenate(([0], bounds))
-    ends = np.concatenate((bounds, [n]))
-    for y in watched:
-        for a, b in zip(starts, ends, strict=True):
-            seg = y[a:b]
-            keep[a + int(np.argmax(seg))] = True
-            keep[a + int(np.argmin(seg))] = True
-    idx = np.flatnonzero(keep)
-    return Waveforms(time=t[idx], vectors={k: v[idx] for k, v in waves.vectors.items()}, log=waves.log)
+    idx = metrics.thin_indices(waves.time, period, THIN_PER_PERIOD, watched)
+    return Waveforms(time=waves.time[idx], vectors={k: v[idx] for k, v in waves.vectors.items()}, log=waves.log)

@@ -219,9 +219,8 @@ def inverter_figures(design: Design, circuit: Circuit, w: Waveforms, window: tup
     T = circuit.period
     ts = sw.time
     if float(ts[-1] - ts[0]) >= T:
-        area = np.concatenate(([0.0], np.cumsum(np.diff(ts) * (p[1:] + p[:-1]) / 2)))
         at = np.linspace(ts[0], ts[-1] - T, max(round(20 * (ts[-1] - ts[0]) / T), 2))
-        means = (np.interp(at + T, ts, area) - np.interp(at, ts, area)) / T
+        means = mx.one_period_mean(ts, p, T, at, centred=False)
         m["inverter_switch_on_power_w"] = float(np.max(means))
     b = design.battery
     if b is not None and "battery_current_a" in m:
@@ -345,12 +344,10 @@ def step_figures(design: Design, sc: Circuit, start: Run, m: dict[str, float], w
     m["sag_v"] = up[1] - down[1]
     m["sag_pct"] = 100 * (up[1] - down[1]) / up[1] if up[1] else math.nan
     rises = [(levels[k][0] - levels[k - 1][0], k) for k in range(1, len(levels))]
-    area = np.concatenate(([0.0], np.cumsum(np.diff(t) * (v[1:] + v[:-1]) / 2)))
+    area = mx.running_integral(t, v)
 
     def period_mean(at: np.ndarray) -> np.ndarray:
-        out = (np.interp(at + T / 2, t, area) - np.interp(at - T / 2, t, area)) / T
-        out[(at - T / 2 < t[0] - 1e-12) | (at + T / 2 > t[-1] + 1e-12)] = np.nan
-        return out
+        return mx.integral_period_mean(t, area, T, at)
 
     # Recovery and overshoot on the one-period mean, as for a keyed load (the settle band: 2 %, keyed-1).
     inc, k = max(rises)

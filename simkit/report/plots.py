@@ -34,6 +34,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from simkit.analysis.metrics import one_period_mean
 from simkit.design.sources import switch_on_words
 from simkit.figures import FIGURES
 from simkit.pipeline.results import DiodeResult
@@ -540,16 +541,6 @@ def run_timeline_figure(result: RunResult, w: Any, what: str) -> tuple[bytes, by
 
 
 # -- keyed loads ---------------------------------------------------------------------------------
-
-
-def one_period_mean(t: np.ndarray, v: np.ndarray, period: float, at: np.ndarray) -> np.ndarray:
-    """The mean of ``v`` over one period centred on each time of ``at`` (trapezoidal integral);
-    NaN where the period reaches past the data."""
-    area = np.concatenate([[0.0], np.cumsum(np.diff(t) * (v[1:] + v[:-1]) / 2)])
-    half = period / 2
-    out = (np.interp(at + half, t, area) - np.interp(at - half, t, area)) / period
-    out[(at - half < t[0] - 1e-12) | (at + half > t[-1] + 1e-12)] = np.nan
-    return out
 
 
 def envelope(t: np.ndarray, v: np.ndarray, bins: int = 2500) -> tuple[np.ndarray, np.ndarray]:
