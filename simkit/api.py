@@ -526,7 +526,8 @@ def sweep(design: Design | str | Path, vary: Mapping[str, Any], jobs: int = 1, z
     Sweep
         One row per point, in point order; a point that fails has its reason in ``error``.
     """
-    from simkit.sweep.specs import build_points, combine, si_value
+    from simkit.sweep.runner import entry, outcomes
+    from simkit.sweep.specs import build_points, combine
     from simkit.sweep.worker import evaluate_safely, simulate_and_check, simulate_point
 
     d = _design(design)
@@ -537,27 +538,20 @@ def sweep(design: Design | str | Path, vary: Mapping[str, Any], jobs: int = 1, z
     specs = [_vary_spec(p, v) for p, v in vary.items()]
     points = build_points(d.data, d.origin, specs, combine(specs, zip))
     evaluate = simulate_and_check if check else simulate_point
-    results: dict[int, dict[str, Any]] = {p.index: {"error": p.error, "metrics": {}, "warnings": []}
-                                          for p in points if p.design is None}
+    by_index = {p.index: p for p in points}
+    rows: dict[int, dict[str, Any]] = {p.index: entry(p, {"error": p.error}, 0) for p in points if p.design is None}
     tasks = [(p.index, p.design) for p in points if p.design is not None]
     if jobs == 1 or len(tasks) < 2:
         for index, payload in tasks:
-            results[index] = evaluate_safely(evaluate, payload)
+            rows[index] = entry(by_index[index], evaluate_safely(evaluate, payload), 1)
     else:
-        from simkit.sweep.pool import ProcessPool
-        from simkit.sweep.worker import prepare
-
-        pool = ProcessPool(jobs=min(jobs, len(tasks)), evaluate=evaluate, prepare=prepare, timeout=timeout)
-        for outcome in pool.run(tasks):
-            results[outcome.point] = outcome.result
-    entries = []
-    for p in points:
-        r = results[p.index]
-        entries.append({"point": p.index, "values": {k: si_value(v) for k, v in p.values.items()},
-                        "metrics": r.get("metrics") or {},
-                        **({"check": r.get("check"), "verdicts": r.get("verdicts") or {}} if r.get("check") else {}),
-                        "warnings": list(r.get("warnings") or []), "error": r.get("error"),
-                        "seconds": r.get("seconds")})
+        stream = outcomes(tasks, evaluate, jobs=jobs, timeout=timeout)
+        try:
+            for outcome in stream:
+                rows[outcome.point] = entry(by_index[outcome.point], outcome.result, outcome.attempts)
+        finally:
+            stream.close()  # stops the workers when interrupted
+    entries = [rows[p.index] for p in points]
     return Sweep(d, [s.path for s in specs], entries)
 
 
@@ -573,21 +567,9 @@ class Sweep:
     def rows(self) -> list[dict[str, Any]]:
         """One dict per point: ``point``, the varied paths (SI), every figure, the verdicts with
         ``check=True``, ``warnings`` (a list) and ``error`` (None when the point ran)."""
-        from simkit.sweep.table import VERDICT_PREFIX, figure_columns, verdict_columns
+        from simkit.sweep.table import flat_rows
 
-        figs = figure_columns(self.entries)
-        verdicts = verdict_columns(self.entries)
-        out = []
-        for e in self.entries:
-            row: dict[str, Any] = {"point": e["point"]}
-            row.update({p: e["values"].get(p) for p in self.inputs})
-            row.update({k: _nan_for_none(e["metrics"].get(k)) for k in figs})
-            for k in verdicts:
-                row[k] = e.get("check") if k == "check" else (e.get("verdicts") or {}).get(k[len(VERDICT_PREFIX):])
-            row["warnings"] = list(e.get("warnings") or [])
-            row["error"] = e.get("error")
-            out.append(row)
-        return out
+        return flat_rows(self.inputs, self.entries, no_figure=math.nan)
 
     @property
     def failed(self) -> list[dict[str, Any]]:
@@ -642,10 +624,6 @@ class Sweep:
 
     def __repr__(self) -> str:
         return f"<simkit Sweep {self.design.title!r}: {len(self.entries)} points over {', '.join(self.inputs)}>"
-
-
-def _nan_for_none(v: Any) -> Any:
-    return math.nan if v is None else v
 
 
 # -- side by side ----------------------------------------------------------------------------------

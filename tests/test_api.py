@@ -234,6 +234,26 @@ def test_a_point_that_is_not_a_design_is_an_error_row() -> None:
         simkit.sweep(simkit.load(AMP), vary={"no_such.key": ["1", "2"]})
 
 
+@pytest.mark.parametrize("jobs", [1, 2])
+def test_sweep_rows_are_the_sweep_commands_rows(monkeypatch: pytest.MonkeyPatch, jobs: int) -> None:
+    # Without a simulator: the stand-in of tests/sweep_helpers.py (vout_dc_v = sqrt(2) x vrms; 555 fails).
+    # In this process and on workers, the entries are the journal's and the CSV is sweep.csv's.
+    from simkit.sweep import table, worker
+    from tests.sweep_helpers import DESIGN, fake_point
+
+    monkeypatch.setattr(worker, "simulate_point", fake_point)
+    s = simkit.sweep(simkit.load(DESIGN), vary={"source.vrms": [100, 555, 200], "load.r": ["5k", "-1k"]}, jobs=jobs)
+    assert [e["point"] for e in s.entries] == list(range(6))
+    assert {e["attempts"] for e in s.entries if "load.r" in (e["error"] or "")} == {0}  # never simulated
+    assert all(e["attempts"] == 1 for e in s.entries if not e["error"] or "stand-in" in e["error"])
+    by = {(r["source.vrms"], r["load.r"]): r for r in s.rows}
+    assert by[(200.0, 5000.0)]["vout_dc_v"] == pytest.approx(math.sqrt(2) * 200, rel=1e-12)
+    assert by[(555.0, 5000.0)]["error"] and math.isnan(by[(555.0, 5000.0)]["vout_dc_v"])
+    assert "load.r" in by[(100.0, -1000.0)]["error"] and by[(100.0, -1000.0)]["warnings"] == []
+    assert list(s.rows[0])[:3] == ["point", "source.vrms", "load.r"] and list(s.rows[0])[-2:] == ["warnings", "error"]
+    assert s.to_csv() == table.csv_text(s.inputs, s.entries)
+
+
 # -- side by side --------------------------------------------------------------------------------------
 
 

@@ -150,6 +150,25 @@ def test_csv_columns_and_zip(design: Path, tmp_path: Path) -> None:
     assert float(got[1]["ripple_pp_v"]) == pytest.approx(1 / 20e-6)
 
 
+def test_flat_rows_are_the_csv_rows() -> None:
+    # The API's Sweep.rows and sweep.csv come from the same rows: same columns in the same order.
+    from simkit.sweep.table import csv_text, flat_rows
+
+    entries = [{"point": 0, "values": {"load.r": 4000.0}, "metrics": {"vout_dc_v": 300.5}, "check": "marginal",
+                "verdicts": {"D1 reverse voltage": "marginal"}, "warnings": ["w1", "w2"], "error": None},
+               {"point": 1, "values": {"load.r": -1.0}, "metrics": {}, "warnings": [],
+                "error": "load.r: must be above 0\nsecond line"}]
+    flat = flat_rows(["load.r"], entries, no_figure=math.nan)
+    parsed = list(csv.DictReader(csv_text(["load.r"], entries).splitlines()))
+    assert [list(r) for r in flat] == [list(r) for r in parsed]
+    assert list(flat[0]) == ["point", "load.r", "vout_dc_v", "check", "check:D1 reverse voltage", "warnings", "error"]
+    assert flat[0]["check:D1 reverse voltage"] == parsed[0]["check:D1 reverse voltage"] == "marginal"
+    assert flat[0]["warnings"] == ["w1", "w2"] and parsed[0]["warnings"] == "w1; w2"
+    assert math.isnan(flat[1]["vout_dc_v"]) and parsed[1]["vout_dc_v"] == "" and flat[1]["check"] is None
+    assert parsed[1]["error"] == "load.r: must be above 0 / second line"
+    assert flat_rows(["load.r"], entries)[1]["vout_dc_v"] is None
+
+
 @pytest.mark.parametrize(("prepare", "words"), [(prepare_that_exits, "die while starting"),
                                                  (prepare_without_simulator, "could not start the simulator")])
 def test_workers_that_cannot_start_stop_the_run_with_exit_3(design: Path, tmp_path: Path, prepare: object,

@@ -19,6 +19,7 @@ import sys
 import time
 from collections.abc import Iterator
 from pathlib import Path
+from typing import Any
 
 import pytest
 
@@ -142,6 +143,71 @@ def test_watching_reads_only_regular_design_sized_files(tmp_path: Path) -> None:
     watched = Watched(design)
     assert watched.files() == [design, Path("/dev/zero")]
     assert len(watched.content()) == 64  # /dev/zero is refused by the safe reader, never read
+
+
+def _fake_run(monkeypatch: pytest.MonkeyPatch, checks: Any) -> None:
+    """Stand-ins for the simulation, the checks and the report, so a run needs no simulator."""
+    from types import SimpleNamespace
+
+    from simkit import pipeline, progress
+    from simkit.report import design_report
+
+    def simulate(design: Any) -> Any:
+        progress.report("steady state", 0.02, None)
+        return SimpleNamespace(metrics={"vout_dc_v": 300.0}, warnings=[])
+
+    monkeypatch.setattr(pipeline, "simulate", simulate)
+    monkeypatch.setattr(design_report, "run_checks", checks)
+    monkeypatch.setattr(design_report, "write_report", lambda *args: [])
+
+
+def test_the_checks_corner_runs_show_and_a_save_during_them_starts_again(tmp_path: Path,
+                                                                         monkeypatch: pytest.MonkeyPatch) -> None:
+    from simkit import progress
+
+    design = tmp_path / "amp.toml"
+    design.write_text(EXAMPLE.read_text())
+    state = LiveState(design_file="amp.toml")
+    said: list[str] = []
+    runner = Runner(str(design), (), None, state, said.append)
+    details: list[str] = []
+    reached: list[str] = []
+
+    def checks(d: Any) -> tuple[Any, str]:
+        with progress.stage("corner 2 of 5: high mains, light load"):
+            progress.report("switch-on", 0.5, 2.0)
+            details.append(state.snapshot()["run"]["detail"])
+            design.write_text(EXAMPLE.read_text().replace('r = "4k"', 'r = "50k"'))  # saved during the checks
+            progress.report("switch-on", 1.0, 2.0)
+            reached.append("after the save")
+        return None, ""
+
+    _fake_run(monkeypatch, checks)
+    assert runner.changed()
+    runner.run_once()
+    assert details and "switch-on" in details[0] and "[corner 2 of 5: high mains, light load]" in details[0]
+    assert not reached and "starting again" in said[-1]  # stopped at the next report, not after the checks
+    assert state.snapshot()["run"] is None and state.snapshot()["result"]["verdicts"] is None
+    assert runner.changed()  # the new content runs next
+
+
+def test_sigterm_stops_a_run_during_the_checks(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    from simkit import progress, watch
+
+    design = tmp_path / "amp.toml"
+    design.write_text(EXAMPLE.read_text())
+    runner = Runner(str(design), (), None, LiveState(design_file="amp.toml"), lambda _text: None)
+
+    def checks(d: Any) -> tuple[Any, str]:
+        with progress.stage("corner 1 of 3: high mains, heavy load"):
+            monkeypatch.setattr(watch._TERM, "requested", True)
+            progress.report("steady state", 0.1, None)
+        raise AssertionError("the checks went on after SIGTERM")
+
+    _fake_run(monkeypatch, checks)
+    assert runner.changed()
+    with pytest.raises(KeyboardInterrupt):
+        runner.run_once()
 
 
 # -- the page in a browser, while the file changes ----------------------------------------------------

@@ -136,7 +136,9 @@ def execute(kind: str, header: dict[str, Any], identity: dict[str, Any], inputs:
             journal.close()
 
 
-def _entry(point: Point, result: dict[str, Any], attempts: int) -> dict[str, Any]:
+def entry(point: Point, result: dict[str, Any], attempts: int) -> dict[str, Any]:
+    """A finished point as the journal keeps it (and the API's ``Sweep.entries``): its values in SI, what
+    the evaluation gave, and how many workers it took (0 for a point that is not a valid design)."""
     return {
         "point": point.index,
         "values": {p: si_value(v) for p, v in point.values.items()},
@@ -163,7 +165,7 @@ def _execute(kind: str, header: dict[str, Any], inputs: Sequence[str], points: S
     # Points that are not valid designs are finished at once: an error row each.
     for p in points:
         if p.design is None and p.index not in journal.entries:
-            journal.append(_entry(p, {"error": p.error}, 0))
+            journal.append(entry(p, {"error": p.error}, 0))
     todo = [p for p in points if p.index not in journal.entries
             or (opts.retry_failed and journal.entries[p.index].get("error") and p.design is not None)]
 
@@ -183,18 +185,19 @@ def _execute(kind: str, header: dict[str, Any], inputs: Sequence[str], points: S
     old_term = _install_sigterm()
     last_rebuild = time.monotonic()
     # A generator: nothing starts until the loop asks for the first outcome.
-    stream_of = _outcomes([(p.index, p.design) for p in todo], opts)
+    stream_of = outcomes([(p.index, p.design) for p in todo], opts.evaluate, opts.prepare, jobs=opts.jobs,
+                         timeout=opts.timeout, scheduler=opts.scheduler)
     try:
         progress.start()
         for outcome in stream_of:
-            entry = _entry(by_index[outcome.point], outcome.result, outcome.attempts)
-            journal.append(entry)
+            row = entry(by_index[outcome.point], outcome.result, outcome.attempts)
+            journal.append(row)
             computed += 1
-            if entry["error"]:
+            if row["error"]:
                 label = ", ".join(f"{k}={v}" for k, v in by_index[outcome.point].values.items())
                 progress.note(f"simkit: point {outcome.point} ({label}) failed: "
-                              f"{table.one_line(entry['error'], 200)}")
-            progress.update(failed=bool(entry["error"]))
+                              f"{table.one_line(row['error'], 200)}")
+            progress.update(failed=bool(row["error"]))
             if time.monotonic() - last_rebuild > REBUILD_EVERY:
                 rebuild()
                 last_rebuild = time.monotonic()
@@ -221,15 +224,22 @@ def _execute(kind: str, header: dict[str, Any], inputs: Sequence[str], points: S
                      time.monotonic() - t_start, files, entries, extra)
 
 
-def _outcomes(tasks: Sequence[tuple[int, Any]], opts: RunOptions) -> Generator[Outcome, None, None]:
+def outcomes(tasks: Sequence[tuple[int, Any]], evaluate: Evaluate, prepare: Callable[[], None] = prepare,
+             jobs: int | None = None, timeout: float | None = 600.0,
+             scheduler: str | None = None) -> Generator[Outcome, None, None]:
+    """Evaluate ``(point, payload)`` tasks on worker processes (or a Dask cluster), yielding each as it finishes.
+
+    ``jobs`` None means the core count.  Nothing starts until the first outcome is asked for; close
+    the generator to stop the workers early.
+    """
     if not tasks:
         return _nothing()
-    if opts.scheduler:
+    if scheduler:
         from simkit.sweep.cluster import cluster_outcomes
 
-        return cluster_outcomes(opts.scheduler, tasks, opts.evaluate, opts.prepare)
-    jobs = min(opts.jobs or default_jobs(), len(tasks))  # never more workers than points
-    pool = ProcessPool(jobs=jobs, evaluate=opts.evaluate, prepare=opts.prepare, timeout=opts.timeout)
+        return cluster_outcomes(scheduler, tasks, evaluate, prepare)
+    workers = min(jobs or default_jobs(), len(tasks))  # never more workers than points
+    pool = ProcessPool(jobs=workers, evaluate=evaluate, prepare=prepare, timeout=timeout)
     return pool.run(tasks)
 
 
@@ -353,4 +363,5 @@ def plot_list(text: str | None) -> list[str]:
     return [s.strip() for s in text.split(",") if s.strip()]
 
 
-__all__ = ["RunOptions", "RunReport", "VarySpec", "execute", "plot_list", "run_sweep", "with_check"]
+__all__ = ["RunOptions", "RunReport", "VarySpec", "entry", "execute", "outcomes", "plot_list", "run_sweep",
+           "with_check"]

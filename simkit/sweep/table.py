@@ -62,25 +62,37 @@ def one_line(text: str | None, limit: int = 400) -> str:
     return flat if len(flat) <= limit else flat[: limit - 3] + "..."
 
 
-def csv_text(inputs: Sequence[str], entries: Sequence[Mapping[str, Any]]) -> str:
-    """The CSV of finished rows, in point order."""
+def flat_rows(inputs: Sequence[str], entries: Sequence[Mapping[str, Any]],
+              no_figure: Any = None) -> list[dict[str, Any]]:
+    """One flat dict per row, keys in column order: ``point``, the inputs, every figure (``no_figure``
+    where a row has none), the verdict columns, ``warnings`` (a list) and ``error``."""
     figs = figure_columns(entries)
     verdicts = verdict_columns(entries)
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["point", *inputs, *figs, *verdicts, "warnings", "error"])
+    rows = []
     for e in entries:
         values = e.get("values") or {}
         metrics = e.get("metrics") or {}
         given = e.get("verdicts") or {}
-        w.writerow([
-            e["point"],
-            *(cell(values.get(p)) for p in inputs),
-            *(cell(metrics.get(k)) for k in figs),
-            *(cell(e.get("check") if k == "check" else given.get(k[len(VERDICT_PREFIX):])) for k in verdicts),
-            one_line("; ".join(e.get("warnings") or [])),
-            one_line(e.get("error")),
-        ])
+        row: dict[str, Any] = {"point": e["point"]}
+        row.update({p: values.get(p) for p in inputs})
+        row.update({k: no_figure if metrics.get(k) is None else metrics[k] for k in figs})
+        row.update({k: e.get("check") if k == "check" else given.get(k[len(VERDICT_PREFIX):]) for k in verdicts})
+        row["warnings"] = list(e.get("warnings") or [])
+        row["error"] = e.get("error")
+        rows.append(row)
+    return rows
+
+
+def csv_text(inputs: Sequence[str], entries: Sequence[Mapping[str, Any]]) -> str:
+    """The CSV of finished rows, in point order."""
+    columns = ["point", *inputs, *figure_columns(entries), *verdict_columns(entries), "warnings", "error"]
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(columns)
+    for row in flat_rows(inputs, entries):
+        # Warnings and error (always the last two columns) become one line each: a CSV cell.
+        w.writerow([*(cell(row[k]) for k in columns[:-2]), one_line("; ".join(row["warnings"])),
+                    one_line(row["error"])])
     return buf.getvalue()
 
 

@@ -3,9 +3,10 @@
 The main thread watches the design file (and the parts file it names) and runs it: read,
 simulate, check, write the report into simkit's own output folder beside the design.  A web
 server (:mod:`simkit.watch.server`, standard library) answers the page from another thread; the
-page follows each run as it goes (:mod:`simkit.watch.state`).  A save during a run stops that run
-at its next progress report and starts a new one.  A design file that does not load, or a run
-that fails, shows its message on the page while the last good figures and report stay.
+page follows each run as it goes, the check's corner runs included (:mod:`simkit.watch.state`).
+A save during a run stops that run at its next progress report and starts a new one.  A design
+file that does not load, or a run that fails, shows its message on the page while the last good
+figures and report stay.
 """
 
 from __future__ import annotations
@@ -19,7 +20,9 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from simkit import progress
 from simkit.errors import DesignError, SimkitError, SimulationError, UsageError
+from simkit.progress import Update
 from simkit.watch.server import WatchServer, content_type
 from simkit.watch.state import LiveState, Served
 
@@ -132,10 +135,10 @@ class Runner:
             return
         raise Superseded
 
-    def _progress(self, what: str, done: float, total: float | None) -> None:
+    def _progress(self, update: Update) -> None:
         if _TERM.requested:  # stop at the first safe point (a signal handler may not raise inside ngspice)
             raise KeyboardInterrupt
-        self.state.progress(what, done, total)
+        self.state.progress(update)
         self._check_superseded()
 
     def changed(self) -> bool:
@@ -166,19 +169,23 @@ class Runner:
         t0 = time.monotonic()
         self.echo(f"simkit: run {number}: {'running' if number == 1 else 'the file changed; running'} {self.design}")
         try:
-            design = load_design(self.design, self.overrides)
-            text = read_design_text(self.design)
-            state.stage("simulate")
-            result = simulate(design, progress=self._progress)
-            self._check_superseded()
-            state.figures(number, design.title, result.metrics, result.warnings)
-            state.stage("check")
-            checks, check_error = run_checks(design)
-            state.verdicts(checks.summary() if checks is not None else None, check_error)
-            self._check_superseded()
-            state.stage("report")
-            names = write_report(result, self.out, text, Path(self.design).name, self.overrides, checks, check_error)
-            state.publish_report(number, self._read_back(names))
+            # Every simulation inside, the check's corner runs included, reports here: the page follows
+            # them, and a save or SIGTERM stops the run at the next report.
+            with progress.listen(self._progress):
+                design = load_design(self.design, self.overrides)
+                text = read_design_text(self.design)
+                state.stage("simulate")
+                result = simulate(design)
+                self._check_superseded()
+                state.figures(number, design.title, result.metrics, result.warnings)
+                state.stage("check")
+                checks, check_error = run_checks(design)
+                state.verdicts(checks.summary() if checks is not None else None, check_error)
+                self._check_superseded()
+                state.stage("report")
+                names = write_report(result, self.out, text, Path(self.design).name, self.overrides, checks,
+                                     check_error)
+                state.publish_report(number, self._read_back(names))
             state.finish(time.monotonic() - t0)
             self.echo(f"simkit: run {number}: done in {time.monotonic() - t0:.1f} s; vout_dc_v "
                       f"{result.metrics.get('vout_dc_v', float('nan')):.6g} V")

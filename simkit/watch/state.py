@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from simkit.figures import FIGURES
+from simkit.progress import Update
 from simkit.safety import CAUTION_POINTS
 
 #: The stages of one run, in order: (key, words shown on the page).
@@ -83,9 +84,12 @@ class LiveState:
                 self.run.detail = detail
             self._changed()
 
-    def progress(self, what: str, done: float, total: float | None) -> None:
-        """A progress callback (``simkit.pipeline.simulate``'s): which run, simulated time done and to do."""
-        text = f"{what}: {_seconds(done)} simulated" + (f" of {_seconds(total)}" if total else "")
+    def progress(self, update: Update) -> None:
+        """A progress report (a :func:`simkit.progress.listen` listener's): which analysis, simulated time done
+        and to do, and the part of the run it belongs to (a check's "corner 2 of 5: ...")."""
+        text = (f"{update.analysis}: {_seconds(update.done)} simulated"
+                + (f" of {_seconds(update.total)}" if update.total else "")
+                + (f" [{update.stage}]" if update.stage else ""))
         with self._cond:
             if self.run is None:
                 return
