@@ -34,7 +34,7 @@ import base64
 import html
 import json
 import math
-from collections.abc import Callable, Iterator, Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
 from importlib import resources
@@ -45,6 +45,7 @@ from simkit.design import model
 from simkit.design.loader import apply_overrides, design_from_dict, parse_toml_text, read_design_text
 from simkit.errors import DesignError, UsageError
 from simkit.figures import FIGURES
+from simkit.progress import Callback as Progress  # (what, simulated time done, time to do or None)
 from simkit.safety import CAUTION_POINTS
 
 if TYPE_CHECKING:
@@ -59,7 +60,6 @@ __all__ = ["Design", "Result", "Sweep", "Verdicts", "check", "compare", "example
 SWEEP_SHOWN = ("vout_dc_v", "ripple_pp_v", "iout_dc_a", "diode_peak_a", "diode_piv_v", "surge_peak_a")
 
 #: A progress callback: (what is running, simulated time done, simulated time to do or None), in s.
-Progress = Callable[[str, float, float | None], None]
 
 
 def example(name: str) -> Path:

@@ -25,7 +25,6 @@ from __future__ import annotations
 import math
 import os
 import sys
-from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -37,6 +36,7 @@ from simkit.engine.ngspice import Engine, Waveforms
 from simkit.netlist.build import keying_drive
 from simkit.netlist.circuit import Circuit
 from simkit.netlist.drives import Drive
+from simkit.progress import Callback as Progress  # (what, simulated time done, time to do or None)
 
 #: Steps per period of the keying pattern, at most (ngspice's own error control usually takes more).
 COARSE_STEPS = 50
@@ -60,8 +60,6 @@ NOISE_SHARE = 0.5
 #: Keying cycles simulated at most before the figures are given as approximate.
 MAX_CYCLES = 8
 
-#: Progress callback: (what, simulated time done, simulated time to do or None).
-Progress = Callable[[str, float, float | None], None]
 
 
 @dataclass

@@ -11,7 +11,6 @@ figure keeps its accuracy.  Coarse chunks that lie after the rise are thinned
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
 from dataclasses import replace
 
 import numpy as np
@@ -21,6 +20,7 @@ from simkit.analysis.runs import Run, end_nodes, end_state, merge, run_span, sta
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine, Waveforms
 from simkit.netlist.circuit import Circuit
+from simkit.progress import Callback as Progress  # (what, simulated time done, time to do or None)
 
 #: Steps per period of the smooth part of a start-up run.
 COARSE_STEPS = 50
@@ -46,7 +46,6 @@ MAX_START_PERIODS = 6000
 #: Samples per period kept of coarse chunks after the rise (plus every monitored extreme).
 THIN_PER_PERIOD = 20
 
-Progress = Callable[[str, float, float | None], None]
 
 
 def overshoot_span(design: Design, circuit: Circuit) -> float:

@@ -41,7 +41,6 @@ from __future__ import annotations
 import math
 import os
 import sys
-from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -53,6 +52,7 @@ from simkit.design.model import Design
 from simkit.engine.ngspice import Engine, Waveforms
 from simkit.errors import SimulationError
 from simkit.netlist.circuit import Circuit
+from simkit.progress import Callback as Progress  # (what, simulated time done, time to do or None)
 
 #: Whole periods of the final span; the figures are taken over them.
 MEASURE_PERIODS = 1
@@ -87,8 +87,6 @@ POWER_TOL = 2e-3
 #: Beyond this share the figures would break energy conservation: the run is refused.
 POWER_FAIL = 0.02
 
-#: Progress callback: (what, simulated time done, simulated time to do or None).
-Progress = Callable[[str, float, float | None], None]
 
 
 @dataclass(frozen=True)
