@@ -144,7 +144,7 @@ def parse_value(value: object, unit: str = "") -> float:
         result = _parse_string(value, unit)
     else:
         raise UnitError(
-            f"got {_type_name(value)}, expected {UNIT_NAMES[unit]} such as {UNIT_EXAMPLES[unit]}"
+            f"got {type_name(value)}, expected {UNIT_NAMES[unit]} such as {UNIT_EXAMPLES[unit]}"
         )
     if not math.isfinite(result):
         raise UnitError(f"{value!r} is not a finite number")
@@ -155,12 +155,12 @@ def _to_float(value: int | float) -> float:
     try:
         return float(value)
     except OverflowError:  # an integer literal with hundreds of digits
-        raise UnitError(f"{_type_name(value)} too large to be a finite number") from None
+        raise UnitError(f"{type_name(value)} too large to be a finite number") from None
 
 
-def _type_name(value: object) -> str:
+def type_name(value: object) -> str:
     """What a TOML value is, in the words of the design file (a table, not a dict)."""
-    names = {dict: "a table", list: "a list", str: "text", int: "a number", float: "a number"}
+    names = {dict: "a table", list: "a list", str: "text", bool: "true/false", int: "a number", float: "a number"}
     return names.get(type(value), f"a {type(value).__name__}")
 
 
@@ -231,7 +231,7 @@ def parse_percent(value: object) -> float:
         if not math.isfinite(v):
             raise UnitError(f'{value!r} is not a percentage such as "10%"')
         return v / 100.0 if text.endswith("%") else parse_percent(v)
-    raise UnitError(f'got {_type_name(value)}, expected a percentage such as "10%"')
+    raise UnitError(f'got {type_name(value)}, expected a percentage such as "10%"')
 
 
 # --- formatting -------------------------------------------------------------------------

@@ -35,6 +35,7 @@ from simkit.design.sources import SOURCE_KINDS, Battery, InverterSource, Source,
 from simkit.design.vocab import Reader, key, keys, read_kind, read_section, show
 from simkit.errors import DesignError
 from simkit.parts import diodes, regulators, tubes
+from simkit.units import type_name
 
 MAX_TITLE = 200
 
@@ -186,12 +187,12 @@ def _filters(rd: Reader, data: Mapping[str, Any]) -> tuple[FilterSection, ...]:
     if isinstance(raw, dict):
         raw = [raw]
     if not isinstance(raw, list):
-        raise rd.fail("filter", f"expected [[filter]] sections, got {_kind(raw)}")
+        raise rd.fail("filter", f"expected [[filter]] sections, got {type_name(raw)}")
     out: list[FilterSection] = []
     for i, sec in enumerate(raw):
         path = f"filter.{i}"
         if not isinstance(sec, dict):
-            raise rd.fail(path, f"expected a [[filter]] table, got {_kind(sec)}")
+            raise rd.fail(path, f"expected a [[filter]] table, got {type_name(sec)}")
         section = read_section(rd, FilterSection, sec, path)
         kind = section.kind
         out.append(_with_part(rd, section, sec, path, {"c": "capacitors", "l": "chokes", "r": "resistors"}[kind]))
@@ -205,11 +206,11 @@ def _loads(rd: Reader, data: Mapping[str, Any], n_filters: int) -> tuple[Load, .
     if isinstance(raw, dict):
         return (_load(rd, raw, "load", n_filters, ""),)
     if not isinstance(raw, list):
-        raise rd.fail("load", f"expected a [load] table or [[load]] tables, got {_kind(raw)}")
+        raise rd.fail("load", f"expected a [load] table or [[load]] tables, got {type_name(raw)}")
     out = []
     for k, t in enumerate(raw):
         if not isinstance(t, dict):
-            raise rd.fail(f"load.{k}", f"expected a [[load]] table, got {_kind(t)}")
+            raise rd.fail(f"load.{k}", f"expected a [[load]] table, got {type_name(t)}")
         out.append(_load(rd, t, f"load.{k}", n_filters, str(k + 1) if len(raw) > 1 else ""))
     return tuple(out)
 
@@ -241,10 +242,6 @@ def _regulator(rd: Reader, data: Mapping[str, Any]) -> Regulator | None:
         return None
     return read_kind(rd, REGULATOR_KINDS, t, "regulator", regulator_foreign)
 
-
-def _kind(v: Any) -> str:
-    return {dict: "a table", list: "a list", str: "text", bool: "true/false", int: "a number",
-            float: "a number"}.get(type(v), type(v).__name__)
 
 
 def design_from_dict(data: Mapping[str, Any], origin: str = "<design>") -> Design:

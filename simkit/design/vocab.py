@@ -24,7 +24,7 @@ from dataclasses import dataclass
 from typing import Any, ClassVar
 
 from simkit.errors import DesignError
-from simkit.units import UnitError, parse_percent, parse_value
+from simkit.units import UnitError, parse_percent, parse_value, type_name
 
 #: A key's value when the file does not give it and it has no default: required, or None.
 MISSING = dataclasses.MISSING
@@ -101,10 +101,6 @@ def keys(cls: type) -> dict[str, tuple[str, Key]]:
 
 
 
-def _kind(v: Any) -> str:
-    return {dict: "a table", list: "a list", str: "text", bool: "true/false", int: "a number",
-            float: "a number"}.get(type(v), type(v).__name__)
-
 
 def show(v: Any) -> str:
     """A value as a message quotes it: never more than 60 characters."""
@@ -142,7 +138,7 @@ class Reader:
             return None
         value = parent[key]
         if not isinstance(value, dict):
-            raise self.fail(path, f"expected a table [{path}], got {_kind(value)}")
+            raise self.fail(path, f"expected a table [{path}], got {type_name(value)}")
         return value
 
     def check_keys(self, table: Mapping[str, Any], allowed: Mapping[str, Any], path: str,
