@@ -43,7 +43,7 @@ from typing import TYPE_CHECKING, Any
 
 from simkit.design import model
 from simkit.design.loader import apply_overrides, design_from_dict, parse_toml_text, read_design_text
-from simkit.errors import DesignError, UsageError
+from simkit.errors import UsageError
 from simkit.figures import FIGURES
 from simkit.progress import Callback as Progress  # (what, simulated time done, time to do or None)
 from simkit.safety import CAUTION_POINTS
@@ -234,22 +234,6 @@ def _design(design: Design | str | Path) -> Design:
 # -- one run ---------------------------------------------------------------------------------------
 
 
-def mains_scale(design: model.Design, mains: str) -> float:
-    """The source EMF's factor for ``mains`` ("nominal", "high", "low"), as ``run --mains`` takes it."""
-    if mains == "nominal":
-        return 1.0
-    if mains not in ("high", "low"):
-        raise UsageError(f"mains={mains!r}: choose nominal, high or low")
-    tol = design.source.mains_tolerance
-    if tol is None:
-        raise DesignError(f"--mains {mains} needs source.mains_tolerance (e.g. \"10%\")", file=design.origin,
-                          key="source.mains_tolerance")
-    if design.source.kind == "inverter":
-        raise DesignError("--mains applies to mains sources; an inverter's supply is its battery",
-                          file=design.origin, key="source.kind")
-    return 1.0 + tol if mains == "high" else 1.0 - tol
-
-
 def run(design: Design | str | Path, mains: str = "nominal", progress: Progress | None = None) -> Result:
     """Simulate a design: steady state, switch-on, and whatever runs its loads and regulator need.
 
@@ -272,7 +256,7 @@ def run(design: Design | str | Path, mains: str = "nominal", progress: Progress 
     from simkit.pipeline import simulate
 
     d = _design(design)
-    vscale = mains_scale(d.model, mains)
+    vscale = d.model.mains_scale(mains)
     result = simulate(d.model, vscale=vscale, progress=progress)
     if vscale != 1.0:
         result.warnings.insert(0, f"simulated at {mains} mains: the source EMF x {vscale:g}")

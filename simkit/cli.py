@@ -32,13 +32,6 @@ def _simulate(design, vscale: float = 1.0):  # type: ignore[no-untyped-def]
     return simulate(design, vscale=vscale)
 
 
-def _mains_scale(design: Any, mains: str) -> float:
-    """1 +- the design's mains tolerance for --mains high/low (the API's rule)."""
-    from simkit.api import mains_scale
-
-    return mains_scale(design, mains)
-
-
 def _simulate_with(design, vscale: float, hash_: bool | None):  # type: ignore[no-untyped-def]
     """``_simulate``, with the high-frequency analysis forced on or off when ``--hash``/``--no-hash`` says so."""
     if hash_ is None:  # as the design says
@@ -120,7 +113,7 @@ def run(design: str, overrides: tuple[str, ...], as_json: bool, out_dir: str | N
     from simkit.report.text import run_table
 
     d = _battery_corner(_load(design, overrides), battery)
-    vscale = _mains_scale(d, mains)
+    vscale = d.mains_scale(mains)
     probe_files = _probe_plan(d, probes, out_dir)
     with contextlib.ExitStack() as stack:
         out = None

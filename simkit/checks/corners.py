@@ -96,11 +96,6 @@ def _switch_on(design: Design) -> tuple[float, str]:
     return worst, (switch_on_words(design.source, worst) if inv is not None and inv.waveform != "sine" else "")
 
 
-def _tolerance(design: Design) -> float | None:
-    """The mains tolerance the corners use: none for an inverter (its battery has corners of its own)."""
-    return design.source.mains_tolerance if design.source.kind != "inverter" else None
-
-
 def _settle_limited(design: Design) -> Design:
     """Corners need no load or line regulation runs, and a corner that never settles (a glow tube that keeps
     striking and going out) is cut at 100 periods with a warning."""
@@ -110,13 +105,13 @@ def _settle_limited(design: Design) -> Design:
 
 def design_corner_names(design: Design) -> dict[str, str]:
     """:func:`corner_names` for a design."""
-    return corner_names(_tolerance(design), any(varies(ld) for ld in design.loads), bool(design.loads),
+    return corner_names(design.mains_corners, any(varies(ld) for ld in design.loads), bool(design.loads),
                         _battery(design), _switch_on(design)[1])
 
 
 def run_corners(design: Design, engine: Engine | None = None) -> Corners:
     eng = engine or get_engine()
-    tol = _tolerance(design)
+    tol = design.mains_corners
     lo = 1 - tol if tol else 1.0
     names = design_corner_names(design)
     battery = _battery(design)
@@ -148,7 +143,7 @@ def run_corners(design: Design, engine: Engine | None = None) -> Corners:
 def heavy_corner(design: Design) -> tuple[Design, float]:
     """The heavy corner's design (loads at their heaviest, switch-on at the crest) and its mains scale, for
     simulating a changed design at that corner again (a fix that must be checked by simulation)."""
-    tol = _tolerance(design)
+    tol = design.mains_corners
     design = _settle_limited(design)
     sim = replace(design.simulation, switch_on_phase=_switch_on(design)[0])
     bat = design.battery

@@ -42,6 +42,7 @@ from simkit.design.loads import (
 from simkit.design.snubber import Snubber, snubber_key
 from simkit.design.sources import SOURCE_KINDS, Battery, InverterSource, SineSource, Source, TransformerSource
 from simkit.design.vocab import Reader, key
+from simkit.errors import DesignError, UsageError
 
 __all__ = [
     "TOPOLOGIES", "Battery", "Bleeder", "CheckPolicy", "CurrentLoad", "Design", "DiodeModel", "DiodeRatings",
@@ -388,6 +389,27 @@ class Design:
     @property
     def keyed(self) -> tuple[KeyedLoad, ...]:
         return tuple(ld for ld in self.loads if isinstance(ld, KeyedLoad))
+
+    @property
+    def mains_corners(self) -> float | None:
+        """The mains tolerance that high and low mains are taken at: none for an inverter (its supply is its
+        battery, whose voltage corners stand in for them)."""
+        return self.source.mains_tolerance if self.source.kind != "inverter" else None
+
+    def mains_scale(self, mains: str) -> float:
+        """The source EMF's factor for ``mains`` ("nominal", "high", "low"), as ``run --mains`` takes it."""
+        if mains == "nominal":
+            return 1.0
+        if mains not in ("high", "low"):
+            raise UsageError(f"mains={mains!r}: choose nominal, high or low")
+        if self.source.kind == "inverter":
+            raise DesignError("--mains applies to mains sources; an inverter's supply is its battery",
+                              file=self.origin, key="source.kind")
+        tol = self.mains_corners
+        if tol is None:
+            raise DesignError(f"--mains {mains} needs source.mains_tolerance (e.g. \"10%\")", file=self.origin,
+                              key="source.mains_tolerance")
+        return 1.0 + tol if mains == "high" else 1.0 - tol
 
     @property
     def has_timeline(self) -> bool:
