@@ -360,3 +360,11 @@ def test_ratings_from_a_user_part_library(tmp_path) -> None:  # type: ignore[no-
     assert verdict(rep, "D1", "surge current").limit == 25
     assert verdict(rep, "C1", "peak voltage").limit == pytest.approx(0.9 * 450)
     assert verdict(rep, "RBLEED", "dissipation").limit == pytest.approx(0.5 * 3)
+    # A rating of 0 rates nothing: refused in a parts file as in the design's own rating tables.
+    from simkit.errors import DesignError
+
+    parts = tmp_path / "parts.toml"
+    parts.write_text(parts.read_text().replace('v = "450"', 'v = "0"'))
+    with pytest.raises(DesignError) as info:
+        load_design(design)
+    assert "capacitors.EL450.v" in str(info.value)

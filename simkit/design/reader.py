@@ -47,9 +47,10 @@ MAX_TITLE = 200
 class LibraryCapacitor:
     """``[capacitors.NAME]`` of a parts file."""
 
-    v: float | None = key("v", "V", "rated voltage", None, minimum=0, maximum=1e6)
-    ripple: float | None = key("ripple", "A", "ripple-current rating", None, minimum=0, maximum=1e6)
-    ripple_frequency: float | None = key("ripple_frequency", "Hz", "frequency of the ripple rating", None, minimum=0,
+    # The ratings are bounded as a design's own (devices.PartRating): a rating of 0 rates nothing.
+    v: float | None = key("v", "V", "rated voltage", None, above=0, maximum=1e6)
+    ripple: float | None = key("ripple", "A", "ripple-current rating (RMS)", None, above=0, maximum=1e6)
+    ripple_frequency: float | None = key("ripple_frequency", "Hz", "frequency of the ripple rating", None, above=0,
                                          maximum=1e6)
     esr: float | None = key("esr", "ohm", "ESR", None, minimum=0, maximum=1e6)
 
@@ -58,7 +59,7 @@ class LibraryCapacitor:
 class LibraryChoke:
     """``[chokes.NAME]`` of a parts file."""
 
-    i: float | None = key("i", "A", "rated DC current", None, minimum=0, maximum=1e6)
+    i: float | None = key("i", "A", "rated DC current", None, above=0, maximum=1e6)
     dcr: float | None = key("dcr", "ohm", "winding resistance", None, minimum=0, maximum=1e6)
 
 
@@ -66,7 +67,7 @@ class LibraryChoke:
 class LibraryResistor:
     """``[resistors.NAME]`` of a parts file."""
 
-    w: float | None = key("w", "W", "power rating", None, minimum=0, maximum=1e6)
+    w: float | None = key("w", "W", "power rating", None, above=0, maximum=1e6)
 
 
 #: Sections of a user parts file (``library = "parts.toml"``) besides ``[diodes.NAME]``.
