@@ -275,8 +275,9 @@ def report(design: str, overrides: tuple[str, ...], out_dir: str | None, force: 
            quiet: bool) -> None:
     """Write a report for documents: report.md, a self-contained report.html, the schematic,
     the verdicts of the stress checks, the plots (PNG and SVG) and the deck."""
+    from simkit.checks import run_checks
     from simkit.design.loader import read_design_text
-    from simkit.report.design_report import default_out_dir, run_checks, write_report
+    from simkit.report.design_report import default_out_dir, write_report
     from simkit.report.outputs import OutputDir
 
     d = _load(design, overrides)

@@ -9,9 +9,10 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+from simkit.checks import run_checks
 from simkit.design.loader import load_design
 from simkit.pipeline import simulate
-from simkit.report.design_report import report_files, run_checks, write_report
+from simkit.report.design_report import report_files, write_report
 from simkit.report.outputs import OutputDir
 from simkit.report.text import show
 from simkit.safety import CAUTIONS

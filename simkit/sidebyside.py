@@ -154,7 +154,7 @@ def run_columns(loaded: Sequence[tuple[str, str, tuple[str, ...], Design]], chec
         result = simulate(design)
         entry = Compared(label, file, ov, design, result)
         if check:
-            from simkit.report.design_report import run_checks
+            from simkit.checks import run_checks
 
             entry.checks, entry.check_error = run_checks(design)
         entries.append(entry)

@@ -83,8 +83,9 @@ def test_an_inverter_fuse_names_the_battery_rms_current() -> None:
 
 @pytest.mark.ngspice
 def test_the_report_summary_starts_with_the_verdict(tmp_path: Path) -> None:
+    from simkit.checks import run_checks
     from simkit.pipeline import simulate
-    from simkit.report.design_report import build_report, run_checks
+    from simkit.report.design_report import build_report
 
     text = PLAIN.format(title="summary", note="", example="").replace('r = "47k"', 'r = "47k"\nrating = { w = "1" }')
     d = design_from_dict(parse_toml_text(text))

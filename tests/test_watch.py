@@ -149,6 +149,7 @@ def _fake_run(monkeypatch: pytest.MonkeyPatch, checks: Any) -> None:
     """Stand-ins for the simulation, the checks and the report, so a run needs no simulator."""
     from types import SimpleNamespace
 
+    from simkit import checks as checking
     from simkit import pipeline, progress
     from simkit.report import design_report
 
@@ -157,7 +158,7 @@ def _fake_run(monkeypatch: pytest.MonkeyPatch, checks: Any) -> None:
         return SimpleNamespace(metrics={"vout_dc_v": 300.0}, warnings=[])
 
     monkeypatch.setattr(pipeline, "simulate", simulate)
-    monkeypatch.setattr(design_report, "run_checks", checks)
+    monkeypatch.setattr(checking, "run_checks", checks)
     monkeypatch.setattr(design_report, "write_report", lambda *args: [])
 
 

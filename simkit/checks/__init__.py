@@ -18,7 +18,7 @@ from simkit.safety import CAUTIONS
 from simkit.stock import at_least
 
 __all__ = ["Assignment", "CheckReport", "Fix", "NotChecked", "Verdict", "check_design", "make_verdict",
-           "next_fuse", "nominal_check", "suggest_fuse"]
+           "next_fuse", "nominal_check", "run_checks", "suggest_fuse"]
 
 #: Added to a transformer's primary current for its magnetising current and losses (common practice).
 MAGNETISING = 0.10
@@ -143,3 +143,14 @@ def check_design(design: Design, engine: Engine | None = None, fixes: bool = Tru
 def nominal_check(result: RunResult) -> Findings:
     """The rules against one run at nominal conditions (no corners, no switch-off run, no fixes)."""
     return evaluate(result.design, nominal_corners(result))
+
+
+def run_checks(design: Design) -> tuple[CheckReport | None, str]:
+    """The design's stress checks (``simkit check``), or None and why they could not run: for reports and
+    pages that show the checks beside the figures and go on without them."""
+    from simkit.errors import SimkitError
+
+    try:
+        return check_design(design), ""
+    except SimkitError as exc:
+        return None, str(exc)

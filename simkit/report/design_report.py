@@ -114,7 +114,7 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
     overrides : sequence of str
         ``--set`` overrides applied on top of the file (listed with it).
     checks : simkit.checks.CheckReport, optional
-        The design's stress checks (:func:`run_checks`): adds the Verdicts section.
+        The design's stress checks (:func:`simkit.checks.run_checks`): adds the Verdicts section.
     check_error : str
         Why the checks could not run, shown as a caution instead.
     """
@@ -249,17 +249,6 @@ def write_report(result: RunResult, out: OutputDir, design_text: str | None = No
                  check_error: str = "") -> list[str]:
     """Build and write the report of one run; returns the file names written."""
     return build_report(result, design_text, source_name, overrides, checks, check_error).write(out)
-
-
-def run_checks(design: Any) -> tuple[CheckReport | None, str]:
-    """The design's stress checks (``simkit check``), or None and why they could not run."""
-    from simkit.checks import check_design
-    from simkit.errors import SimkitError
-
-    try:
-        return check_design(design), ""
-    except SimkitError as exc:
-        return None, str(exc)
 
 
 # -- pieces ----------------------------------------------------------------------------------

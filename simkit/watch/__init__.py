@@ -159,9 +159,10 @@ class Runner:
 
     def run_once(self) -> None:
         """One run: read, simulate, check, report; any failure is shown and the last good result kept."""
+        from simkit.checks import run_checks
         from simkit.design.loader import load_design, read_design_text
         from simkit.pipeline import simulate
-        from simkit.report.design_report import run_checks, write_report
+        from simkit.report.design_report import write_report
 
         state = self.state
         self._started_on = self.watched.signature
