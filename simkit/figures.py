@@ -62,6 +62,8 @@ FIGURES: dict[str, Figure] = _table(
     Figure("vout_warmup_v", "V", "highest output voltage before the loads draw current", _ON),
     # Battery and inverter (with a [battery]).
     Figure("battery_current_a", "A", "mean battery current in steady state", _BAT, words="battery current"),
+    Figure("battery_rms_a", "A", "RMS battery current in steady state (what the battery lead's fuse and wiring carry)",
+           _BAT, words="battery RMS current"),
     Figure("battery_peak_current_a", "A", "highest instantaneous battery current: in steady state, and in steady "
            "keying when the load is keyed", _BAT, words="battery peak current"),
     Figure("battery_voltage_v", "V", "mean battery terminal voltage under load", _BAT, words="battery voltage"),

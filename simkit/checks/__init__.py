@@ -103,7 +103,8 @@ def suggest_fuse(design: Design, corners: Corners) -> dict[str, Any]:
     src = design.source
     if src.inverter is not None and design.battery is not None and heavy.circuit.battery_nodes:
         # The battery's low corner draws the most current for the same power.
-        i, corner = max((_battery_rms(r), name) for name, r in corners.results.items() if r.circuit.battery_nodes)
+        i, corner = max((r.metrics["battery_rms_a"], name) for name, r in corners.results.items()
+                        if "battery_rms_a" in r.metrics)
         what, where = "the battery's RMS current", "in the battery lead, at the battery"
     elif src.transformer is not None and "primary_rms_a" in heavy.metrics:
         i = heavy.metrics["primary_rms_a"] * (1 + MAGNETISING)
@@ -117,15 +118,6 @@ def suggest_fuse(design: Design, corners: Corners) -> dict[str, Any]:
     return {"rating_a": rating, "type": "slow-blow (time-lag)", "where": where, "current_a": i, "current": what,
             "corner": corner,
             "why": f"1.5 x {what}, slow-blow because the switch-on surge would blow a fast fuse (common practice)"}
-
-
-def _battery_rms(result: RunResult) -> float:
-    """The battery's RMS current over the measuring window, A (its node ``ib`` carries it as volts)."""
-    from simkit.analysis import metrics as mx
-
-    w = result.steady.final.waves
-    t0, t1 = result.window
-    return mx.rms(w.time, w.v("ib"), t0, t1)
 
 
 def check_design(design: Design, engine: Engine | None = None, fixes: bool = True) -> CheckReport:

@@ -265,6 +265,7 @@ def _battery_figures(design: Design, circuit: Circuit, w: Waveforms, window: tup
     t = w.time
     ib = w.v("ib")
     m["battery_current_a"] = mx.mean(t, ib, t0, t1)
+    m["battery_rms_a"] = mx.rms(t, ib, t0, t1)
     m["battery_peak_current_a"] = mx.peak(t, ib, t0, t1)
     m["battery_voltage_v"] = mx.mean(t, w.v("vt"), t0, t1)
     p_in = mx.mean(t, w.v("vt") * ib, t0, t1)
