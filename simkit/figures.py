@@ -105,6 +105,8 @@ FIGURES: dict[str, Figure] = _table(
            "current as it varies", _KEY, words="run time while keying"),
     # Regulator (with a [regulator]).
     Figure("reg_vin_v", "V", "mean regulator input (the filter's output)", _REG, words="regulator input voltage"),
+    Figure("reg_vin_min_v", "V", "lowest regulator input over the analysed span (steady state and keying): the "
+           "trough a series regulator must stay above", _REG, words="regulator input trough"),
     Figure("reg_vout_v", "V", "mean regulated output", _REG, words="regulated output voltage"),
     Figure("reg_headroom_min_v", "V", "lowest input minus output over the analysed span (steady state and keying)",
            _REG, words="regulator headroom"),

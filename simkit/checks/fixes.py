@@ -510,13 +510,11 @@ def _headroom(ctx: FixContext, v: Verdict) -> Fix | None:
     want = v.limit * (1 + ctx.design.checks.marginal) * (1 + SLACK)
     corner = ctx.corners.results.get(v.corner)
     ref = reg.reference - (want - v.value)
-    if corner is not None:
-        # In dropout the headroom says little: from the input's lowest point, the headroom wanted, and the gate's
-        # voltage at the load current (square law, reg-4), the reference that brings it back into regulation.
-        w = corner.steady.final.waves
-        t0, t1 = corner.window
-        sel = (w.time >= t0) & (w.time <= t1)
-        vin_min = float(w.v("raw")[sel].min())
+    if corner is not None and "reg_vin_min_v" in corner.metrics:
+        # In dropout the headroom says little: from the input's lowest point (keying included), the headroom
+        # wanted, and the gate's voltage at the load current (square law, reg-4), the reference that brings it
+        # back into regulation.
+        vin_min = corner.metrics["reg_vin_min_v"]
         current = max(corner.metrics.get("iout_dc_a", 0.0), 1e-6)
         vgs = reg.device.vto + math.sqrt(2 * current / reg.device.kp)
         ref = min(ref, vin_min - want + vgs)

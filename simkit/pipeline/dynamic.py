@@ -254,6 +254,7 @@ def regulator_figures(design: Design, circuit: Circuit, w: Waveforms, window: tu
             rt = rw.time + ref.offset
             spans.append((rt, rw.v("raw"), rw.v("out"), rw, float(rt[0]) + ref.tstop / 2, float(rt[-1])))
     m["reg_vin_v"] = mx.mean(t, vin, t0, t1)
+    m["reg_vin_min_v"] = min(mx.trough(tt, a, c0, c1) for tt, a, _, _, c0, c1 in spans)
     m["reg_vout_v"] = mx.mean(t, vout, t0, t1)
     m["reg_headroom_min_v"] = min(mx.trough(tt, a - b, c0, c1) for tt, a, b, _, c0, c1 in spans)
     rin = mx.peak_to_peak(t, vin, t0, t1)
