@@ -19,11 +19,12 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
+from typing import Any
 
 from simkit.analysis.discharge import discharge
 from simkit.checks.corners import Corners
 from simkit.checks.fix import SLACK, Assignment, Fix, aim
-from simkit.checks.rules import Findings, Verdict
+from simkit.checks.rules import Findings, RatedPart, Verdict, capacitor_ratings, resistor_ratings
 from simkit.design.model import Bleeder, Design, DiodeModel, SeriesRegulator, ShuntRegulator
 from simkit.engine.ngspice import Engine, get_engine
 from simkit.parts import diodes as diode_library
@@ -116,38 +117,11 @@ def _filter_index(design: Design, kind: str, k: int) -> int:
     return [i for i, s in enumerate(design.filters) if s.kind == kind][k]
 
 
-def _capacitor_path(ctx: FixContext, name: str) -> tuple[str, str | None]:
-    """(rating path, parts-file name) of a capacitor by its deck name."""
-    design = ctx.design
+def _rated(ctx: FixContext, name: str, parts: Callable[[Design, Any], list[RatedPart]]) -> tuple[str, str | None]:
+    """(rating path, parts-file name) of a capacitor or resistor by its deck name, as the rules found it."""
     circuit = next(iter(ctx.corners.results.values())).circuit
-    k = 0
-    for c in circuit.capacitors:
-        if not c.is_part or c.role == "reference":
-            continue
-        if c.role == "stage":
-            if c.name == name:
-                return "rectifier.capacitor_rating", None
-            continue
-        i = _filter_index(design, "c", k)
-        if c.name == name:
-            return f"filter.{i}.rating", design.filters[i].part
-        k += 1
-    raise KeyError(name)
-
-
-def _resistor_path(design: Design, name: str) -> tuple[str, str | None]:
-    """(rating path, parts-file name) of a resistor's power rating by its deck name."""
-    if name == "RBLEED":
-        return "bleeder.rating", design.bleeder.part if design.bleeder else None
-    if name.startswith("RBAL"):
-        return "rectifier.balancing_rating", None
-    if name.startswith("RSH"):
-        return "rectifier.sharing_rating", None
-    if name == "RREG":
-        return "regulator.resistor_rating", None
-    k = int(name[1:]) - 1
-    i = _filter_index(design, "r", k)
-    return f"filter.{i}.rating", design.filters[i].part
+    found = next(p for p in parts(ctx.design, circuit) if p.name == name)
+    return found.path, found.part
 
 
 def _library_note(part: str, what: str) -> Fix:
@@ -401,7 +375,7 @@ def _tube_input(ctx: FixContext, v: Verdict) -> Fix | None:
 
 @fixer("capacitor.voltage")
 def _capacitor_voltage(ctx: FixContext, v: Verdict) -> Fix | None:
-    path, part = _capacitor_path(ctx, v.part)
+    path, part = _rated(ctx, v.part, capacitor_ratings)
     need = v.value / (ctx.design.checks.capacitor_voltage * ctx.aim)
     try:
         volts = capacitor_volts(need)
@@ -416,7 +390,7 @@ def _capacitor_voltage(ctx: FixContext, v: Verdict) -> Fix | None:
 
 @fixer("capacitor.ripple")
 def _capacitor_ripple(ctx: FixContext, v: Verdict) -> Fix | None:
-    path, part = _capacitor_path(ctx, v.part)
+    path, part = _rated(ctx, v.part, capacitor_ratings)
     amps = at_least(v.value / ctx.aim, "R10")
     if part is not None:
         return _library_note(part, f"for {eng(amps, 'A')} ripple or more")
@@ -462,7 +436,7 @@ def _choke(ctx: FixContext, v: Verdict) -> Fix | None:
 
 @fixer("resistor.dissipation")
 def _resistor(ctx: FixContext, v: Verdict) -> Fix | None:
-    path, part = _resistor_path(ctx.design, v.part)
+    path, part = _rated(ctx, v.part, resistor_ratings)
     w = _watts(ctx, v.value)
     if part is not None:
         return _library_note(part, f"{w:g} W or more")

@@ -290,7 +290,9 @@ def evaluate(design: Design, corners: Corners) -> Findings:
                  "no sharing resistors (rectifier.sharing): the share rests on the diodes' matched leakage")
 
     # --- capacitors ---------------------------------------------------------------------------------------
-    for name, rating, what in _capacitor_ratings(design, circuit):
+    for rp in capacitor_ratings(design, circuit):
+        name, rating = rp.name, rp.rating
+        what = rp.path if rp.path == "rectifier.capacitor_rating" else "filter section"
         pk = part_max(name, "peak_v")
         rip = part_max(name, "ripple_rms_a", loaded)
         if rating is None or rating.v is None:
@@ -329,7 +331,8 @@ def evaluate(design: Design, corners: Corners) -> Findings:
         else:
             skip(name, "DC current", "no rating given (add rating = { i = ... })",
                  (abs(dc[0]), dc[1]) if dc else None, "A")
-    for name, rating in _resistor_ratings(design, circuit):
+    for rp in resistor_ratings(design, circuit):
+        name, rating = rp.name, rp.rating
         diss = part_max(name, "dissipation_w")
         per = design.rectifier.series if name.startswith("RSH") else 1  # one string's resistors share it
         if diss:
@@ -466,33 +469,48 @@ def _per_path(design: Design) -> float:
     return 2.0 if design.rectifier.topology == "bridge" else 1.0
 
 
-def _capacitor_ratings(design: Design, circuit: Any) -> list[tuple[str, PartRating | None, str]]:
-    caps = [c for c in circuit.capacitors if c.is_part]
-    out: list[tuple[str, PartRating | None, str]] = []
-    filt = iter([s for s in design.filters if s.kind == "c"])
-    for c in caps:
-        if c.role == "reference":
-            continue  # the regulator's reference filter: at the reference voltage, no rating key
+@dataclass(frozen=True)
+class RatedPart:
+    """A capacitor or resistor of the deck with its rating: where the design gives that rating (the path a
+    fix sets) and the parts-file name it came from, if any."""
+
+    name: str  # deck name: C1, RBLEED, ...
+    rating: PartRating | None
+    path: str  # "filter.2.rating", "rectifier.capacitor_rating", "bleeder.rating", ...
+    part: str | None = None
+
+
+def capacitor_ratings(design: Design, circuit: Any) -> list[RatedPart]:
+    """Every capacitor of the design (the regulator's reference filter aside: it has no rating key)."""
+    out: list[RatedPart] = []
+    filt = iter([i for i, s in enumerate(design.filters) if s.kind == "c"])
+    for c in circuit.capacitors:
+        if not c.is_part or c.role == "reference":
+            continue
         if c.role == "stage":
-            out.append((c.name, design.rectifier.capacitor_rating, "rectifier.capacitor_rating"))
+            out.append(RatedPart(c.name, design.rectifier.capacitor_rating, "rectifier.capacitor_rating"))
         else:
-            sec = next(filt)
-            out.append((c.name, sec.rating, "filter section"))
+            i = next(filt)
+            out.append(RatedPart(c.name, design.filters[i].rating, f"filter.{i}.rating", design.filters[i].part))
     return out
 
 
-def _resistor_ratings(design: Design, circuit: Any) -> list[tuple[str, PartRating | None]]:
-    out: list[tuple[str, PartRating | None]] = []
-    res_secs = iter([s for s in design.filters if s.kind == "r"])
+def resistor_ratings(design: Design, circuit: Any) -> list[RatedPart]:
+    """Every resistor of the design that has a power rating key."""
+    out: list[RatedPart] = []
+    res = iter([i for i, s in enumerate(design.filters) if s.kind == "r"])
+    bleeder = design.bleeder
     for r in circuit.resistors:
         if r.role == "filter":
-            out.append((r.name, next(res_secs).rating))
+            i = next(res)
+            out.append(RatedPart(r.name, design.filters[i].rating, f"filter.{i}.rating", design.filters[i].part))
         elif r.role == "bleeder":
-            out.append((r.name, design.bleeder.rating if design.bleeder else None))
+            out.append(RatedPart(r.name, bleeder.rating if bleeder else None, "bleeder.rating",
+                                 bleeder.part if bleeder else None))
         elif r.role == "balancing":
-            out.append((r.name, design.rectifier.balancing_rating))
+            out.append(RatedPart(r.name, design.rectifier.balancing_rating, "rectifier.balancing_rating"))
         elif r.role == "sharing":
-            out.append((r.name, design.rectifier.sharing_rating))
+            out.append(RatedPart(r.name, design.rectifier.sharing_rating, "rectifier.sharing_rating"))
         elif r.name == "RREG" and design.regulator is not None:
-            out.append((r.name, design.regulator.resistor_rating))
+            out.append(RatedPart(r.name, design.regulator.resistor_rating, "regulator.resistor_rating"))
     return out
