@@ -30,7 +30,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from simkit.analysis import metrics as mx
-from simkit.analysis.runs import Run, end_nodes, end_state, run_span
+from simkit.analysis.runs import Run, restart_state, run_span
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine, Waveforms
 from simkit.netlist.build import keying_drive
@@ -251,7 +251,7 @@ def keyed_steady(engine: Engine, design: Design, circuit: Circuit, start: dict[s
                     span = cut - t
                 run = run_span(engine, loose, circuit, span, state, coarse, offset=t)
                 trace.add(circuit, run.waves, t)
-                state = {**end_state(circuit, run.waves), **end_nodes(circuit, run.waves)}
+                state = restart_state(circuit, run.waves)
                 points_per_period = len(run.waves.time) / (span / T)
                 chunk = max(round(CHUNK_POINTS / max(points_per_period, 1.0)), 4) * T
                 t += span

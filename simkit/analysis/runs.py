@@ -104,6 +104,11 @@ def end_state(circuit: Circuit, waves: Waveforms) -> dict[str, float]:
     return state
 
 
+def restart_state(circuit: Circuit, waves: Waveforms) -> dict[str, float]:
+    """Where a run ended, as the next span starts from it: the state and every node's voltage."""
+    return {**end_state(circuit, waves), **end_nodes(circuit, waves)}
+
+
 def state_at(circuit: Circuit, waves: Waveforms, t: float) -> dict[str, float]:
     """Capacitor voltages and inductor currents at time t of a run (interpolated)."""
     tt = waves.time

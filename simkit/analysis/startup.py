@@ -16,7 +16,7 @@ from dataclasses import replace
 import numpy as np
 
 from simkit.analysis import metrics
-from simkit.analysis.runs import Run, end_nodes, end_state, merge, run_span, state_at
+from simkit.analysis.runs import Run, end_nodes, merge, restart_state, run_span, state_at
 from simkit.design.model import Design
 from simkit.engine.ngspice import Engine, Waveforms
 from simkit.netlist.circuit import Circuit
@@ -125,7 +125,7 @@ def switch_on(engine: Engine, design: Design, circuit: Circuit, steps: int, targ
     if fixed is None and (events > 0 or not reached or chokes):
         limit = start_limit(design, circuit)
         t = fine
-        state = {**end_state(circuit, first.waves), **end_nodes(circuit, first.waves)}
+        state = restart_state(circuit, first.waves)
         chunk = first_chunk(design, circuit) * T
         means: list[float] = []
         sim = design.simulation
@@ -134,7 +134,7 @@ def switch_on(engine: Engine, design: Design, circuit: Circuit, steps: int, targ
             run = run_span(engine, loose, circuit, chunk, state, coarse_steps(design), offset=t)
             t += chunk
             chunk = COARSE_CHUNK * T
-            state = {**end_state(circuit, run.waves), **end_nodes(circuit, run.waves)}
+            state = restart_state(circuit, run.waves)
             v = run.waves.v(out)
             means += [p.mean for p in metrics.period_stats(run.waves.time, v, T, 0.0)]
             was_reached = reached

@@ -12,7 +12,7 @@ from simkit import progress as progress_hook
 from simkit.analysis import metrics as mx
 from simkit.analysis import plan
 from simkit.analysis.keyed import keyed_steady
-from simkit.analysis.runs import end_nodes, end_state
+from simkit.analysis.runs import restart_state
 from simkit.analysis.startup import start_limit, switch_on
 from simkit.analysis.steady import MEASURE_PERIODS, Progress, Solution, steady_state
 from simkit.design.loads import lighten
@@ -147,7 +147,7 @@ def simulate(design: Design, engine: Engine | None = None, vscale: float = 1.0, 
         keyed_circuit = build_circuit(design, phase_deg=0.0, vscale=vscale, mode="keyed")
         cycle = max(keying_drive(ld).period or 0.0 for ld in design.keyed)
         jac = mean.solution.jacobian if mean.solution is not None else None
-        start_state = {**end_state(mean_circuit, mean.final.waves), **end_nodes(mean_circuit, mean.final.waves)}
+        start_state = restart_state(mean_circuit, mean.final.waves)
         keyed = keyed_steady(eng, design, keyed_circuit, start_state, cycle, steady.steps, jacobian=jac,
                              progress=progress)
     result = figures(design, circuit, steady, start, start_circuit, keyed)
