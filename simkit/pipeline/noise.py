@@ -26,7 +26,7 @@ import numpy as np
 
 from simkit.analysis import spectrum
 from simkit.analysis.highfreq import HF_PERIODS, HighFreqRun, high_frequency, points
-from simkit.analysis.keyed import KeyedRun
+from simkit.analysis.keyed import KeyedRun, longest_key_down
 from simkit.analysis.ringing import Ring, measure_ring, strongest, turn_offs
 from simkit.design.model import Design
 from simkit.design.snubber import Snubber
@@ -74,11 +74,10 @@ def keydown_window(design: Design, keyed: KeyedRun) -> tuple[float, float] | Non
     or None when no key-down lasts a whole period."""
     if not design.keyed:
         return None
-    c0, c1 = keyed.window
-    downs = keying_drive(design.keyed[0]).intervals(c0, c1, level=0.999)
-    if not downs:
+    longest = longest_key_down(keying_drive(design.keyed[0]), *keyed.window)
+    if longest is None:
         return None
-    a, b = max(downs, key=lambda iv: iv[1] - iv[0])
+    a, b = longest
     T = design.source.period
     if b - a < T:
         return None
