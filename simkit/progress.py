@@ -105,15 +105,19 @@ def _seconds(s: float) -> str:
     return f"{s * 1e3:.3g} ms"
 
 
-def line_text(u: Update) -> str:
-    """One update as the status line shows it."""
+def update_text(u: Update) -> str:
+    """One update in words: the analysis, how far it is, and the part of the job it belongs to."""
     if u.total is not None and u.total > 0:
         share = u.share or 0.0
         what = f"{u.analysis}: {_seconds(u.done)} of {_seconds(u.total)} simulated ({100 * share:.0f} %)"
     else:
         what = f"{u.analysis}: {_seconds(u.done)} simulated"
-    where = f" [{u.stage}]" if u.stage else ""
-    return f"simkit: {what}{where}, {u.elapsed:.0f} s"
+    return what + (f" [{u.stage}]" if u.stage else "")
+
+
+def line_text(u: Update) -> str:
+    """One update as the status line shows it."""
+    return f"simkit: {update_text(u)}, {u.elapsed:.0f} s"
 
 
 class TerminalLine:

@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from simkit.figures import FIGURES
-from simkit.progress import Update
+from simkit.progress import Update, update_text
 from simkit.safety import CAUTION_POINTS
 
 #: The stages of one run, in order: (key, words shown on the page).
@@ -87,9 +87,7 @@ class LiveState:
     def progress(self, update: Update) -> None:
         """A progress report (a :func:`simkit.progress.listen` listener's): which analysis, simulated time done
         and to do, and the part of the run it belongs to (a check's "corner 2 of 5: ...")."""
-        text = (f"{update.analysis}: {_seconds(update.done)} simulated"
-                + (f" of {_seconds(update.total)}" if update.total else "")
-                + (f" [{update.stage}]" if update.stage else ""))
+        text = update_text(update)  # as the terminal's status line words it
         with self._cond:
             if self.run is None:
                 return
@@ -170,11 +168,6 @@ class LiveState:
                     "status": self.status, "run": run, "error": self.error, "result": self.result,
                     "report": self.report, "cautions": list(CAUTION_POINTS)}
 
-
-def _seconds(x: float | None) -> str:
-    if x is None or not math.isfinite(x):
-        return "?"
-    return f"{x * 1e3:.0f} ms" if x < 1 else f"{x:.2f} s"
 
 
 def _figure_rows(metrics: Mapping[str, float], before: Mapping[str, float | None]) -> list[dict[str, Any]]:
