@@ -545,11 +545,9 @@ def _soft_start(ctx: FixContext, reg: SeriesRegulator, device: regulator_library
                 limit: float) -> tuple[float, float] | None:
     """The largest E12 reference-filter capacitor (a few steps down) whose switch-on peak is within ``limit``."""
     from simkit.checks.corners import heavy_corner
-    from simkit.design.model import PassDevice
     from simkit.pipeline import simulate
 
-    dev = PassDevice(vto=device.vto, kp=device.kp, vdss=device.vdss, id_max=device.id_max, pd=device.pd,
-                     name=device.name, source=device.source)
+    dev = device.device()
     design, vscale = heavy_corner(ctx.design)
     engine = ctx.engine or get_engine()
     c = reg.filter_c

@@ -149,8 +149,7 @@ def _read_glow(rd: Reader, name: Any, path: str, table: Mapping[str, Any] | None
         near = difflib.get_close_matches(name.upper(), list(regulators.GLOW), n=1, cutoff=0.4)
         hint = f"; did you mean {near[0]!r}?" if near else f"; the library has {', '.join(regulators.GLOW)}"
         raise rd.fail(path, f"{show(name)} is not a glow tube of the library{hint}")
-    return GlowSpec(part.name, 1, part.maintaining, part.striking, part.extinction, part.i_min, part.i_max,
-                    part.resistance, part.source)
+    return part.spec()
 
 
 def _read_mosfet(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> PassDevice:
@@ -160,7 +159,7 @@ def _read_mosfet(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | Non
         if m is None:
             raise rd.fail(path, f"{show(raw)} is not a MOSFET of the library ({', '.join(regulators.MOSFETS)}); "
                           'or give it inline: { vto = "3.5", kp = "2.5" }')
-        return PassDevice(vto=m.vto, kp=m.kp, vdss=m.vdss, id_max=m.id_max, pd=m.pd, name=m.name, source=m.source)
+        return m.device()
     if not isinstance(raw, dict):
         raise rd.fail(path, f'expected a library name or {{ vto = "3.5", kp = "2.5" }}, got {show(raw)}')
     return read_section(rd, PassDevice, raw, path)

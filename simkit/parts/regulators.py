@@ -18,6 +18,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from simkit.design.devices import GlowSpec, PassDevice
+
 
 @dataclass(frozen=True)
 class GlowTube:
@@ -34,6 +36,11 @@ class GlowTube:
         """Voltage below which the discharge goes out, V (just under the maintaining voltage)."""
         return self.maintaining - 3.0
 
+    def spec(self, count: int = 1) -> GlowSpec:
+        """This tube as a design's regulator uses it (``count`` in series)."""
+        return GlowSpec(self.name, count, self.maintaining, self.striking, self.extinction, self.i_min, self.i_max,
+                        self.resistance, self.source)
+
 
 @dataclass(frozen=True)
 class Mosfet:
@@ -44,6 +51,11 @@ class Mosfet:
     id_max: float  # A continuous (case 25 C)
     pd: float  # W (case 25 C; needs a heatsink to get near it)
     source: str
+
+    def device(self) -> PassDevice:
+        """This MOSFET as a series regulator's pass device."""
+        return PassDevice(vto=self.vto, kp=self.kp, vdss=self.vdss, id_max=self.id_max, pd=self.pd, name=self.name,
+                          source=self.source)
 
 
 GLOW: dict[str, GlowTube] = {
