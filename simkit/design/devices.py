@@ -199,12 +199,17 @@ class Zener:
                               label="zener power rating")
 
 
+def zener_resistance(voltage: float) -> float:
+    """A datasheet-like dynamic resistance for a zener of this voltage when none is given: 1/20 of the
+    voltage, at least 1 ohm (common practice)."""
+    return max(voltage / 20.0, 1.0)
+
+
 def read_zener(rd: Reader, raw: Any, path: str, table: Mapping[str, Any] | None = None) -> Zener:
     if not isinstance(raw, dict):
         raise rd.fail(path, f'expected {{ voltage = "75", count = 2 }}, got {show(raw)}')
     z = read_section(rd, Zener, raw, path)
-    # A datasheet-like dynamic resistance when none is given: 1/20 of the zener voltage (common practice).
-    return z if "resistance" in raw else replace(z, resistance=max(z.voltage / 20.0, 1.0))
+    return z if "resistance" in raw else replace(z, resistance=zener_resistance(z.voltage))
 
 
 @dataclass(frozen=True)

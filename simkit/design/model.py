@@ -27,6 +27,7 @@ from simkit.design.devices import (
     Zener,
     rating_reader,
     read_zener,
+    zener_resistance,
 )
 from simkit.design.loads import (
     LOAD_KINDS,
@@ -228,9 +229,9 @@ class ShuntRegulator:
 
 
 def _zener_string(reference: float) -> Zener:
-    """A reference of zeners of up to 200 V each, 1/20 of each one's voltage as its dynamic resistance."""
+    """A reference of zeners of up to 200 V each, each with the usual dynamic resistance (zener_resistance)."""
     n = max(1, math.ceil(reference / 200.0))
-    return Zener(voltage=reference / n, count=n, resistance=reference / n / 20.0)
+    return Zener(voltage=reference / n, count=n, resistance=zener_resistance(reference / n))
 
 
 @dataclass(frozen=True, kw_only=True)
