@@ -263,21 +263,22 @@ class _Builder:
         return f"v({node})"
 
     def snubber(self, a: str, b: str, inductance: float, tag: str) -> None:
+        """The snubber simkit adds where inductance feeds the diodes: SNUB_C, and R near the ringing's impedance."""
         r = min(max(math.sqrt(inductance / SNUB_C), 100.0), 100e3)
-        mid = f"{tag.lower()}m"
-        self.c.add(Element(f"C{tag}", (a, mid), spice(SNUB_C), comment="snubber (damps inductance at the diodes)",
-                           ic=0.0))
-        self.c.add(Element(f"R{tag}", (mid, b), spice(r), comment="snubber"))
-        self.c.capacitors.append(CapRef(f"C{tag}", a, b, a, mid, "", SNUB_C, "snubber"))
-        self.c.resistors.append(ResRef(f"R{tag}", mid, b, r, "snubber"))
+        self._rc(a, b, SNUB_C, r, tag, "snubber (damps inductance at the diodes)", "snubber")
 
     def own_snubber(self, a: str, b: str, snub: Snubber, tag: str, across: str) -> None:
         """A snubber the design fits (``C{tag}`` then ``R{tag}``, from ``a`` to ``b``)."""
+        words = f"snubber across {across} (design)"
+        self._rc(a, b, snub.c, snub.r, tag, words, words)
+
+    def _rc(self, a: str, b: str, c: float, r: float, tag: str, c_words: str, r_words: str) -> None:
+        """A series RC from ``a`` to ``b``: ``C{tag}`` (starting empty), then ``R{tag}``."""
         mid = f"{tag.lower()}m"
-        self.c.add(Element(f"C{tag}", (a, mid), spice(snub.c), comment=f"snubber across {across} (design)", ic=0.0))
-        self.c.add(Element(f"R{tag}", (mid, b), spice(snub.r), comment=f"snubber across {across} (design)"))
-        self.c.capacitors.append(CapRef(f"C{tag}", a, b, a, mid, "", snub.c, "snubber"))
-        self.c.resistors.append(ResRef(f"R{tag}", mid, b, snub.r, "snubber"))
+        self.c.add(Element(f"C{tag}", (a, mid), spice(c), comment=c_words, ic=0.0))
+        self.c.add(Element(f"R{tag}", (mid, b), spice(r), comment=r_words))
+        self.c.capacitors.append(CapRef(f"C{tag}", a, b, a, mid, "", c, "snubber"))
+        self.c.resistors.append(ResRef(f"R{tag}", mid, b, r, "snubber"))
 
     def tie(self, node: str) -> None:
         name = f"RT{node.upper()}"
