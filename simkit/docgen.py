@@ -74,7 +74,7 @@ def _section(path: str, k: Key) -> list[str]:
     done: set[str] = set()
     for cls in k.of:
         for name, (_attr, sub) in keys(cls).items():
-            if sub.of and f"{path}.{name}" not in done and sub.unit in ("table", "diode", "mosfet"):
+            if sub.of and f"{path}.{name}" not in done and sub.unit in ("table", "diode", "mosfet", "list"):
                 done.add(f"{path}.{name}")
                 out += _inline(f"{path}.{name}", sub)
     return out
@@ -84,7 +84,8 @@ def _inline(path: str, k: Key) -> list[str]:
     out: list[str] = []
     kinds = [c for c in k.of if isinstance(getattr(c, "kind", None), str)]
     for cls in kinds or [k.of[0]]:
-        head = f"#### {path} = {{ ... }}" + (f" kind = \"{cls.kind}\"" if kinds else "")
+        shape = "[{ ... }, ...]" if k.unit == "list" else "{ ... }"  # a list of tables, or one table
+        head = f"#### {path} = {shape}" + (f" kind = \"{cls.kind}\"" if kinds else "")
         out += [head, "", *_rows(cls), ""]
     return out
 
