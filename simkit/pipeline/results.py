@@ -130,6 +130,12 @@ class RunResult:
     battery_harmonics: list[Harmonic] = field(default_factory=list)
     hash: Any = None  # simkit.pipeline.noise.HashResult when the high-frequency analysis ran
 
+    @property
+    def periods(self) -> int:
+        """Whole source periods the steady-state figures are taken over."""
+        t0, t1 = self.window
+        return round((t1 - t0) / self.circuit.period)
+
     def part(self, name: str, kind: type[P]) -> P:
         """One part's result, of the kind asked for (a KeyError when there is no such part)."""
         p = self.parts[name]

@@ -107,7 +107,7 @@ def compare_text(comparison: Any) -> str:
 
 
 def _steady_out(result: Any) -> tuple[np.ndarray, np.ndarray]:
-    w = result.waveform("out" if result.circuit.output == "out" else result.circuit.output, "steady")
+    w = result.waveform(result.circuit.output, "steady")
     return w.time, w.value
 
 

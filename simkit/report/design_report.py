@@ -161,7 +161,7 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
     doc.table(["key", "value", "meaning"], _input_rows(result), align="lll", markup=False)
 
     doc.heading("Figures")
-    doc.paragraph(f"Steady-state figures over the last {_periods(result)} whole periods after the output "
+    doc.paragraph(f"Steady-state figures over the last {result.periods} whole periods after the output "
                   "settled; switch-on figures from a separate run that starts with every capacitor empty.")
     doc.table(["figure", "value", "meaning"], _figure_rows(result), align="lrl", markup=True)
 
@@ -193,7 +193,7 @@ def build_report(result: RunResult, design_text: str | None = None, source_name:
     doc.heading("Waveforms")
     png, svg = plots.output_steady_figure(result)
     where = "output node and the rectifier node" if c.rectified != c.output else "output node"
-    doc.image("output-steady", png, svg, f"Output voltage over the last {_periods(result)} periods in steady "
+    doc.image("output-steady", png, svg, f"Output voltage over the last {result.periods} periods in steady "
               f"state, at the {where}, with the mean dashed")
     png, svg = plots.diode_currents_figure(result)
     doc.image("diode-currents", png, svg, "Current pulses in each rectifier diode in steady state, anode to "
@@ -253,10 +253,6 @@ def write_report(result: RunResult, out: OutputDir, design_text: str | None = No
 
 # -- pieces ----------------------------------------------------------------------------------
 
-
-def _periods(result: RunResult) -> int:
-    t0, t1 = result.window
-    return round((t1 - t0) / result.circuit.period)
 
 
 def _summary(result: RunResult) -> str:

@@ -337,10 +337,6 @@ def _steady(result: RunResult) -> tuple[np.ndarray, np.ndarray, float]:
     return sel, w.time[sel] - t0, t0
 
 
-def _periods(result: RunResult) -> int:
-    t0, t1 = result.window
-    return round((t1 - t0) / result.circuit.period)
-
 
 def _freq(result: RunResult) -> str:
     return eng(1.0 / result.circuit.period, "Hz")
@@ -366,7 +362,7 @@ def _where(result: RunResult, node: str) -> str:
 
 
 def _window_label(result: RunResult) -> str:
-    n = _periods(result)
+    n = result.periods
     last = "the last period" if n == 1 else f"the last {n} periods"
     return f"time within {last} of the steady state ({_freq(result)} source)"
 

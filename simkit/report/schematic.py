@@ -113,19 +113,11 @@ def user_parts(circuit: Circuit) -> list[str]:
     return names
 
 
-def _design_loads(design: Design | None) -> tuple[Any, ...]:
-    if design is None:
-        return ()
-    loads = getattr(design, "loads", None)
-    if loads is not None:
-        return tuple(loads)
-    one = getattr(design, "load", None)
-    return (one,) if one is not None else ()
 
 
 def _loads(circuit: Circuit, design: Design | None) -> list[tuple[str, str, Any]]:
     """(element name, node it hangs on, the design's load or None) for every load."""
-    loads = _design_loads(design)
+    loads = design.loads if design is not None else ()
     return [(r.name, r.node, loads[r.index] if r.index < len(loads) else None) for r in circuit.loads]
 
 
