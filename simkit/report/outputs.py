@@ -119,7 +119,12 @@ def write_atomic(path: Path, data: bytes | str, exclusive: bool = False) -> None
     st = refuse_non_file(path)
     if exclusive and st is not None:
         raise OutputError(f"{path}: exists; simkit never overwrites it")
-    tmp = _new_temporary(path)
+    _place(_new_temporary(path), path, raw, exclusive)
+
+
+def _place(tmp: Path, path: Path, raw: bytes, exclusive: bool) -> None:
+    """Fill the temporary ``tmp``, then make it ``path`` (a new link when ``exclusive``, else a rename) and
+    sync the folder; on any failure the temporary is removed."""
     try:
         _fill(tmp, raw)
         refuse_non_file(path)  # again: the folder may have changed while writing
@@ -268,20 +273,7 @@ class PendingFile:
         tmp = self._tmp
         assert tmp is not None, "commit() once"
         self._tmp = None
-        try:
-            _fill(tmp, raw)
-            refuse_non_file(self.path)
-            if self.exclusive:
-                _link_new(tmp, self.path)
-            else:
-                os.replace(tmp, self.path)
-        except OSError as exc:
-            _remove(tmp)
-            raise _write_error(self.path, exc) from None
-        except BaseException:
-            _remove(tmp)
-            raise
-        _sync_dir(self.path.parent)
+        _place(tmp, self.path, raw, self.exclusive)
 
     def discard(self) -> None:
         if self._tmp is not None:
