@@ -7,7 +7,6 @@ options, then the simulation gives up with ngspice's own messages.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -126,7 +125,3 @@ def merge(pieces: list[Run]) -> Waveforms:
     vectors = {n: np.concatenate([p.waves.vectors[n] for p in pieces]) for n in pieces[0].waves.vectors}
     return Waveforms(time=np.concatenate(times), vectors=vectors)
 
-
-def whole_periods(span: float, period: float) -> float:
-    """``span`` rounded up to whole periods, s."""
-    return max(math.ceil(span / period - 1e-9), 1) * period

@@ -101,9 +101,6 @@ class Waveforms:
         except KeyError:
             raise KeyError(f"no branch {name!r}; have {sorted(self.vectors)}") from None
 
-    def vdiff(self, a: str, b: str) -> np.ndarray:
-        return self.v(a) - self.v(b)
-
 
 class Engine:
     """A libngspice instance: load a deck, run it, copy the vectors out, clean up.
