@@ -394,15 +394,16 @@ def _many_summary(report: Any, what: str) -> None:
               "START:STOP:COUNTlog (e.g. 10u:1m:9log).  Several --vary make a grid.")
 @click.option("--zip", "paired", is_flag=True, help="Pair the --vary lists point by point (same length) "
               "instead of making a grid.")
-@click.option("--plot", "plot_figs", metavar="FIGURE[,FIGURE...]", help="Write sweep.png: these figures "
-              "against the first --vary, one line per value of the second.")
+@click.option("--plot", "plot_figs", metavar="FIGURE[,FIGURE...]", multiple=True, help="Write sweep.png: these "
+              "figures against the first --vary, one line per value of the second (repeat --plot, or separate "
+              "them with commas).")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), help="Folder for sweep.csv, sweep.json and "
               "the journal (default: DESIGN's name + '-sweep').")
 @click.option("--check", "check", is_flag=True, help="Also check every point as `simkit check` does and add its "
               "verdicts to the rows (more simulations per point).")
 @click.option("--report", "report", is_flag=True, help="Also write report.md and report.html into --out.")
 @_many_options
-def sweep(design: str, varies: tuple[str, ...], paired: bool, plot_figs: str | None, out_dir: str | None,
+def sweep(design: str, varies: tuple[str, ...], paired: bool, plot_figs: tuple[str, ...], out_dir: str | None,
           check: bool, report: bool, overrides: tuple[str, ...], jobs: int | None, scheduler: str | None,
           timeout: float, retry_failed: bool, force: bool) -> None:
     """Simulate a design over a grid of values; interrupted runs resume where they stopped."""
@@ -410,7 +411,7 @@ def sweep(design: str, varies: tuple[str, ...], paired: bool, plot_figs: str | N
 
     out = out_dir or f"{Path(design).stem}-sweep"
     opts = _many_opts(out, jobs, scheduler, timeout, force, retry_failed)
-    done = run_sweep(design, varies, opts, paired=paired, overrides=overrides, plot=plot_list(plot_figs),
+    done = run_sweep(design, varies, opts, paired=paired, overrides=overrides, plot=plot_list(",".join(plot_figs)),
                      check=check, report=report)
     _many_summary(done, "points")
 

@@ -167,6 +167,20 @@ def test_a_point_that_fails_does_not_stop_the_sweep(tmp_path: Path, capsys: pyte
 
 
 @pytest.mark.ngspice
+def test_plot_figures_may_be_repeated_or_listed(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # "--plot a --plot b" is "--plot a,b": the same plot, to the byte (the plots are repeatable).
+    design = tiny(tmp_path)
+    pngs = []
+    for name, plots in (("listed", ["--plot", "ripple_pp_v,vout_dc_v"]),
+                        ("repeated", ["--plot", "ripple_pp_v", "--plot", "vout_dc_v"])):
+        code, _, err = call(["sweep", str(design), "--vary", "load.r=2k,5k", "--jobs", "1", "--out",
+                             str(tmp_path / name), *plots], capsys)
+        assert code == 0, err
+        pngs.append((tmp_path / name / "sweep.png").read_bytes())
+    assert pngs[0] == pngs[1]
+
+
+@pytest.mark.ngspice
 def test_spread_with_a_seed_gives_the_same_results_twice(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     design = tiny(tmp_path)
     results = []
