@@ -237,8 +237,7 @@ class Engine:
         """Remove the circuit kept loaded between runs, if any."""
         if self._loaded is not None:
             self._loaded = None
-            with _sigint_held():
-                self._command("remcirc")
+            self._command("remcirc")  # _command holds Ctrl-C back itself
 
     def _load(self, deck: str) -> int:
         """Hand the deck to ngspice line by line (PySpice's own loader calls any output holding the
